@@ -1,0 +1,155 @@
+/**
+ * A whole event: per-vignette baselines, every live run judged against its vignette, and the
+ * per-run overall p-values combined across runs. Used alike by the batch command and the live
+ * service, so both give the same numbers.
+ */
+import { assessRun, buildBaseline, NotAssessableError, type Baseline, type RunAssessment } from './assess.js';
+import { channelScales, joinedWeights } from './calibrate.js';
+import { combinePValues, type Combined } from './combine.js';
+import { fitFpca } from './fpca.js';
+import { fullWindow, windowWeights } from './grid.js';
+import type { AnalysisSettings, ChannelSpec, RawTrack } from './types.js';
+
+export interface VignetteSpec {
+  readonly id: string;
+  readonly horizon: number;
+}
+
+/** Summary of a vignette's simulated tracks alone (full window). */
+export interface ModelSummary {
+  readonly sims: number;
+  readonly excludedSims: number;
+  readonly components: number;
+  readonly varianceExplained: number;
+  /** Leading eigenvalues (scaled units), at most 10. */
+  readonly eigenvalues: number[];
+  /** Channel scales s_c in channel units. */
+  readonly channelScales: number[];
+}
+
+export function summariseBaseline(baseline: Baseline): ModelSummary {
+  const gw = windowWeights(baseline.grid, fullWindow(baseline.horizon));
+  const scales = channelScales(baseline.curves, gw, baseline.channels.length);
+  const model = fitFpca(baseline.curves, joinedWeights(gw, scales), baseline.settings.components);
+  return {
+    sims: baseline.curves.length,
+    excludedSims: baseline.excluded.length,
+    components: model.eigenvalues.length,
+    varianceExplained: model.varianceExplained,
+    eigenvalues: Array.from(model.eigenvalues.subarray(0, 10)),
+    channelScales: Array.from(scales),
+  };
+}
+
+/** Root-mean-square deviation of the run from the simulated mean over its window, per channel (physical units). */
+export function rmsDeviation(run: RunAssessment, baseline: Baseline, simMean: Float64Array): number[] {
+  const M = baseline.grid.points.length;
+  const out: number[] = [];
+  for (let c = 0; c < baseline.channels.length; c++) {
+    let s = 0;
+    let n = 0;
+    for (let g = 0; g < M; g++) {
+      if (!run.active[g]) continue;
+      const r = run.curve[c * M + g] - simMean[c * M + g];
+      s += r * r;
+      n++;
+    }
+    out.push(n > 0 ? Math.sqrt(s / n) : Number.NaN);
+  }
+  return out;
+}
+
+export function meanCurve(curves: readonly Float64Array[]): Float64Array {
+  const m = new Float64Array(curves[0]?.length ?? 0);
+  for (const c of curves) for (let i = 0; i < m.length; i++) m[i] += c[i];
+  for (let i = 0; i < m.length; i++) m[i] /= curves.length;
+  return m;
+}
+
+export interface RunOutcome {
+  readonly vignette: string;
+  readonly track: string;
+  readonly samples: number;
+  readonly assessment?: RunAssessment;
+  /** Physical-unit RMS deviation from the simulated mean, per channel. */
+  readonly rms?: number[];
+  /** Why the run could not be judged. */
+  readonly error?: string;
+}
+
+export interface VignetteOutcome {
+  readonly id: string;
+  readonly horizon: number;
+  readonly summary?: ModelSummary;
+  readonly error?: string;
+  /** Combination of this vignette's run p-values (when it has judged runs). */
+  readonly combined?: Combined;
+}
+
+export interface EventAssessment {
+  readonly vignettes: VignetteOutcome[];
+  readonly runs: RunOutcome[];
+  /** Combination of every judged run's overall p-value. */
+  readonly combined?: Combined;
+}
+
+export type EventProgress = (stage: 'baseline' | 'runs', vignette: string, done: number, total: number) => void;
+
+/**
+ * Judge every live run. Runs of a vignette without usable simulated tracks, or that cannot be
+ * judged (too few samples), are reported with their reason and left out of the combination.
+ */
+export function assessEvent(
+  vignettes: readonly VignetteSpec[],
+  channels: readonly ChannelSpec[],
+  settings: AnalysisSettings,
+  sims: readonly RawTrack[],
+  live: readonly RawTrack[],
+  onProgress?: EventProgress,
+): EventAssessment {
+  const vOut: VignetteOutcome[] = [];
+  const runs: RunOutcome[] = [];
+  for (const v of vignettes) {
+    const vSims = sims.filter((s) => s.vignette === v.id);
+    const vLive = live.filter((s) => s.vignette === v.id);
+    let baseline: Baseline | undefined;
+    let summary: ModelSummary | undefined;
+    let error: string | undefined;
+    if (vSims.length > 0 || vLive.length > 0) {
+      try {
+        baseline = buildBaseline(v.id, v.horizon, channels, vSims, settings, (d, t) => onProgress?.('baseline', v.id, d, t));
+        if (baseline.curves.length < 19) throw new NotAssessableError(`vignette ${v.id} has ${baseline.curves.length} usable simulated tracks; at least 19 are needed`);
+        summary = summariseBaseline(baseline);
+      } catch (e) {
+        error = e instanceof Error ? e.message : String(e);
+        baseline = undefined;
+      }
+    }
+    const simMean = baseline ? meanCurve(baseline.curves) : undefined;
+    const pvals: number[] = [];
+    vLive.forEach((run, i) => {
+      if (!baseline || !simMean) {
+        runs.push({ vignette: v.id, track: run.track, samples: run.t.length, error: error ?? `vignette ${v.id} has no simulated tracks` });
+        return;
+      }
+      try {
+        const a = assessRun(baseline, run);
+        runs.push({ vignette: v.id, track: run.track, samples: run.t.length, assessment: a, rms: rmsDeviation(a, baseline, simMean) });
+        pvals.push(a.result.pValues.overall);
+      } catch (e) {
+        if (!(e instanceof NotAssessableError)) throw e;
+        runs.push({ vignette: v.id, track: run.track, samples: run.t.length, error: e.message });
+      }
+      onProgress?.('runs', v.id, i + 1, vLive.length);
+    });
+    vOut.push({
+      id: v.id,
+      horizon: v.horizon,
+      summary,
+      error,
+      combined: pvals.length > 0 ? combinePValues(pvals, settings.combination) : undefined,
+    });
+  }
+  const all = runs.flatMap((r) => (r.assessment ? [r.assessment.result.pValues.overall] : []));
+  return { vignettes: vOut, runs, combined: all.length > 0 ? combinePValues(all, settings.combination) : undefined };
+}

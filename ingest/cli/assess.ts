@@ -1,0 +1,90 @@
+/**
+ * `plumbline assess`: judge recorded live runs against simulated ones, from files.
+ *
+ *   plumbline assess --plan plan.json --baseline sims.csv --live live.csv [--out result.json] [--skip-bad-rows]
+ */
+import { writeFile } from 'node:fs/promises';
+import { assessEvent } from '../../engine/event.js';
+import { loadPlan, type EventPlan } from '../plan.js';
+import { buildReport, type AssessmentReport } from '../report.js';
+import { readTracks, type ReadResult } from '../tracks-reader.js';
+import { formatNumber, formatP, table } from './format.js';
+import { terminalProgress } from './progress.js';
+
+export interface AssessInputs {
+  readonly planPath: string;
+  readonly baselinePath: string;
+  readonly livePath: string;
+  readonly skipBadRows?: boolean;
+}
+
+/** Read the files and judge every live run (the whole batch path, without printing). */
+export async function assessFiles(inputs: AssessInputs, showProgress = true): Promise<{ plan: EventPlan; report: AssessmentReport }> {
+  const progress = terminalProgress();
+  const plan = await loadPlan(inputs.planPath);
+  const read = async (path: string, label: string): Promise<ReadResult> =>
+    readTracks(path, plan, {
+      skipBadRows: inputs.skipBadRows,
+      onProgress: showProgress ? (done, total) => progress.update(`reading ${label}`, done, total) : undefined,
+    });
+  const baseline = await read(inputs.baselinePath, 'baseline');
+  const live = await read(inputs.livePath, 'live runs');
+  const event = assessEvent(plan.vignettes, plan.channels, plan.analysis, baseline.tracks, live.tracks, (stage, v, d, t) => {
+    if (showProgress) progress.update(stage === 'baseline' ? `smoothing simulated tracks of ${v}` : `judging live runs of ${v}`, d, t);
+  });
+  progress.done();
+  return { plan, report: buildReport(plan, event, { baseline: baseline.report, live: live.report }) };
+}
+
+export function formatReport(plan: EventPlan, report: AssessmentReport): string {
+  const channels = plan.channels;
+  const rows = report.runs.map((r) => [
+    r.vignette,
+    r.track,
+    formatP(r.statistics?.l2.pValue),
+    formatP(r.statistics?.score.pValue),
+    formatP(r.statistics?.residual.pValue),
+    formatP(r.overall?.pValue),
+    ...channels.map((c) => formatNumber(r.rmsDeviation?.[c.name], 1)),
+    r.status === 'assessed' ? r.flags.join(',') : `not judged: ${r.reason ?? ''}`,
+  ]);
+  const header = ['vignette', 'run', 'p(L2)', 'p(score)', 'p(resid)', 'p(overall)', ...channels.map((c) => `rms ${c.name} (${c.unit})`), 'flags'];
+  const out: string[] = [];
+  out.push(`${report.plan.name}: ${report.runs.length} live runs in ${report.vignettes.length} vignettes`);
+  out.push('');
+  out.push(table(header, rows));
+  out.push('');
+  const models = report.vignettes.map((v) => [
+    v.id,
+    v.status,
+    String(v.model?.sims ?? '—'),
+    String(v.model?.components ?? '—'),
+    v.model ? `${(100 * v.model.varianceExplained).toFixed(1)} %` : '—',
+    formatP(v.combined?.pValue),
+  ]);
+  out.push(table(['vignette', 'baseline', 'sims', 'components', 'variance', `p(${report.plan.combination})`], models));
+  out.push('');
+  const inputs = [report.inputs.baseline, report.inputs.live].filter((x) => x !== undefined);
+  for (const i of inputs) {
+    const extra = [
+      i.skipped > 0 ? `${i.skipped} bad rows skipped` : '',
+      i.duplicates > 0 ? `${i.duplicates} duplicates dropped` : '',
+      i.beyondHorizon > 0 ? `${i.beyondHorizon} beyond the horizon` : '',
+    ].filter(Boolean);
+    out.push(`${i.file}: ${i.accepted} points in ${i.tracks} tracks${extra.length ? ` (${extra.join(', ')})` : ''}`);
+  }
+  if (report.combined) {
+    const c = report.combined;
+    out.push('');
+    out.push(
+      `combined (${c.method}, ${c.count} runs): p = ${formatP(c.pValue)} — ${c.distinguishable ? `live runs are statistically distinguishable from the simulation at alpha = ${c.alpha}` : `no significant difference at alpha = ${c.alpha}`}`,
+    );
+  }
+  out.push('');
+  for (const caution of report.cautions) out.push(`caution: ${caution}`);
+  return out.join('\n');
+}
+
+export async function writeReport(path: string, report: AssessmentReport): Promise<void> {
+  await writeFile(path, `${JSON.stringify(report, null, 1)}\n`, 'utf8');
+}

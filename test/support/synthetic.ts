@@ -1,0 +1,65 @@
+/**
+ * Synthetic two-channel functional data for the engine's statistical tests (invented; not the demo).
+ *
+ * Channel 0 ("position", unit ~ m) and channel 1 ("angle", unit ~ deg) on [0, H]: a fixed mean plus
+ * a random combination of smooth modes with decaying variances (a truncated Karhunen–Loève-type
+ * expansion), observed at irregular times (nominal interval dtNominal, uniform jitter ±20 %, 3 % of
+ * samples missed) with Gaussian noise. Alternatives add a known discrepancy to the live curve.
+ */
+import type { RawTrack } from '../../engine/types.js';
+import type { Rng } from '../../engine/rng.js';
+
+export const H = 100;
+
+export type Discrepancy =
+  | { kind: 'none' }
+  | { kind: 'shift'; size: number }
+  | { kind: 'bump'; size: number; centre: number; width: number }
+  | { kind: 'wiggle'; size: number; cycles: number };
+
+export interface SampleOptions {
+  readonly dtNominal?: number;
+  /** Remove samples in this interval (a dropout). */
+  readonly dropout?: readonly [number, number];
+  /** Stop observing at this time (an early end). */
+  readonly endAt?: number;
+  readonly discrepancy?: Discrepancy;
+}
+
+const NOISE = [1.0, 0.05] as const;
+
+function truthAt(t: number, a: Float64Array, channel: number, d: Discrepancy): number {
+  const u = t / H;
+  let v: number;
+  if (channel === 0) {
+    v = 100 + 40 * u + 12 * a[0] * Math.sin(Math.PI * u) + 6 * a[1] * Math.cos(Math.PI * u) + 3 * a[2] * Math.sin(2 * Math.PI * u) + 1.5 * a[3] * Math.sin(3 * Math.PI * u);
+    if (d.kind === 'shift') v += d.size;
+    if (d.kind === 'bump') v += d.size * Math.exp(-0.5 * ((t - d.centre) / d.width) ** 2);
+    if (d.kind === 'wiggle') v += d.size * Math.sin(2 * Math.PI * d.cycles * u);
+  } else {
+    v = 30 - 10 * u + 1.2 * a[4] * Math.sin(Math.PI * u) + 0.6 * a[5] * Math.cos(2 * Math.PI * u) + 0.3 * a[0] * u;
+  }
+  return v;
+}
+
+export function sampleTrack(rng: Rng, id: string, options: SampleOptions = {}): RawTrack {
+  const dt = options.dtNominal ?? 0.5;
+  const d = options.discrepancy ?? { kind: 'none' };
+  const a = Float64Array.from({ length: 6 }, () => rng.normal());
+  const t: number[] = [];
+  const y0: number[] = [];
+  const y1: number[] = [];
+  const end = options.endAt ?? H;
+  for (let s = rng.uniform() * 0.2 * dt; s <= end; s += dt * (0.8 + 0.4 * rng.uniform())) {
+    if (rng.uniform() < 0.03) continue;
+    if (options.dropout && s > options.dropout[0] && s < options.dropout[1]) continue;
+    t.push(s);
+    y0.push(truthAt(s, a, 0, d) + NOISE[0] * rng.normal());
+    y1.push(truthAt(s, a, 1, d) + NOISE[1] * rng.normal());
+  }
+  return { vignette: 'V', track: id, t: Float64Array.from(t), values: [Float64Array.from(y0), Float64Array.from(y1)] };
+}
+
+export function sampleBaseline(rng: Rng, n: number, dtNominal = 0.5): RawTrack[] {
+  return Array.from({ length: n }, (_, i) => sampleTrack(rng, `sim-${i}`, { dtNominal }));
+}
