@@ -192,8 +192,8 @@ export function demoPlanJson(): unknown {
     description:
       'Invented harbour-approach trials of an uncrewed surface vessel (the USV), tracked by the shore radar. ' +
       'Each run is a six-minute approach: a transit at cruise speed, a dogleg turn round the north breakwater, ' +
-      'and a slow final leg into the harbour mouth. Vignettes cross three sea states with three approach lanes. ' +
-      'The simulation under-predicts the speed lost in the turn in the high sea state.',
+      'and a slow final leg into the harbour mouth. Vignettes cross three sea states with three approach lanes; ' +
+      'the shore radar reports slant range and bearing at about 2 Hz.',
     channels: [
       { name: 'range', unit: 'm', tolerance: 25, maxRate: 40 },
       { name: 'bearing', unit: 'deg', period: 360, tolerance: 1.0, maxRate: 8 },
