@@ -4,7 +4,8 @@
  * `buildReport` turns the engine's results into it, so both paths write the same numbers.
  */
 import { z } from 'zod';
-import type { EventAssessment, RunOutcome } from '../engine/event.js';
+import type { Combined } from '../engine/combine.js';
+import type { EventAssessment, ModelSummary, RunOutcome } from '../engine/event.js';
 import type { EventPlan } from './plan.js';
 import type { ReadReport } from './tracks-reader.js';
 
@@ -148,7 +149,22 @@ export function runReport(plan: EventPlan, run: RunOutcome): RunReport {
   };
 }
 
-export function buildReport(plan: EventPlan, event: EventAssessment, inputs: { baseline?: ReadReport; live?: ReadReport }): AssessmentReport {
+export interface ReportVignette {
+  readonly id: string;
+  readonly horizon: number;
+  readonly summary?: ModelSummary;
+  readonly error?: string;
+  readonly combined?: Combined;
+}
+
+/** Assemble the document from per-run rows (the live service keeps rows; the batch path makes them). */
+export function assembleReport(
+  plan: EventPlan,
+  vignettes: readonly ReportVignette[],
+  runs: readonly RunReport[],
+  combinedAll: Combined | undefined,
+  inputs: { baseline?: ReadReport; live?: ReadReport },
+): AssessmentReport {
   const s = plan.analysis;
   const comps = s.components.kind === 'variance' ? { varianceFraction: s.components.fraction } : { fixed: s.components.count };
   return {
@@ -167,7 +183,7 @@ export function buildReport(plan: EventPlan, event: EventAssessment, inputs: { b
       baseline: inputs.baseline ? readSummaryOf(inputs.baseline) : undefined,
       live: inputs.live ? readSummaryOf(inputs.live) : undefined,
     },
-    vignettes: event.vignettes.map((v) => {
+    vignettes: vignettes.map((v) => {
       const pv = plan.vignettes.find((x) => x.id === v.id);
       return {
         id: v.id,
@@ -181,12 +197,22 @@ export function buildReport(plan: EventPlan, event: EventAssessment, inputs: { b
               channelScales: Object.fromEntries(plan.channels.map((c, i) => [c.name, v.summary?.channelScales[i] ?? Number.NaN])),
             }
           : undefined,
-        runs: event.runs.filter((r) => r.vignette === v.id).length,
+        runs: runs.filter((r) => r.vignette === v.id).length,
         combined: v.combined,
       };
     }),
-    runs: event.runs.map((r) => runReport(plan, r)),
-    combined: event.combined ? { ...event.combined, alpha: s.alpha, distinguishable: event.combined.pValue <= s.alpha } : undefined,
+    runs: [...runs],
+    combined: combinedAll ? { ...combinedAll, alpha: s.alpha, distinguishable: combinedAll.pValue <= s.alpha } : undefined,
     cautions: [...CAUTIONS],
   };
+}
+
+export function buildReport(plan: EventPlan, event: EventAssessment, inputs: { baseline?: ReadReport; live?: ReadReport }): AssessmentReport {
+  return assembleReport(
+    plan,
+    event.vignettes,
+    event.runs.map((r) => runReport(plan, r)),
+    event.combined,
+    inputs,
+  );
 }

@@ -4,7 +4,9 @@
  *   assess      judge recorded live runs against simulated ones, from files
  *   demo-files  write the invented demo event (plan, simulated and live runs) to a folder
  *   demo        the built-in demo: write the demo event and judge it
- *   schema      print the JSON Schema of the plan or of the assessment document
+ *   schema      print the JSON Schema of the plan, the assessment document or the feed protocol
+ *   serve       the live service: WebSocket feed, journal, running assessment, dashboard
+ *   replay      send recorded tracks to a running service as a producer would
  *
  * Exit codes: 0 success; 2 bad input or usage; 3 internal failure.
  */
@@ -16,6 +18,14 @@ import { planJsonSchema } from '../plan.js';
 import { assessmentReportSchema } from '../report.js';
 import { assessFiles, formatReport, writeReport } from './assess.js';
 import { writeDemoFiles } from './demo-files.js';
+import { readFileSync } from 'node:fs';
+import { JournalError } from '../service/journal.js';
+import { protocolJsonSchema } from '../service/protocol.js';
+import { replay, ReplayError } from '../service/replay.js';
+import { ServeError, startServer } from '../service/server.js';
+import { loadPlan } from '../plan.js';
+import { readTracks } from '../tracks-reader.js';
+import { terminalProgress } from './progress.js';
 
 export const EXIT_OK = 0;
 export const EXIT_INPUT = 2;
@@ -34,8 +44,15 @@ commands:
       write the invented harbour-approach demo event and judge it
   demo-files [--dir DIR] [--seed N] [--sims N] [--live-runs N]
       only write the demo event's files (plan.json, baseline.csv, live.csv, truth.json)
-  schema plan|assessment
-      print the JSON Schema of an event plan or of the assessment document
+  schema plan|assessment|protocol
+      print the JSON Schema of an event plan, the assessment document or the feed protocol
+  serve [--plan FILE] [--baseline FILE] [--journal FILE] [--host H] [--port N] [--token-file F]
+        [--allow-origin URL]... [--durability normal|full]
+      the live service (default 127.0.0.1:7340, journal .plumbline/journal.sqlite); binding to
+      another address needs a producer token (PLUMBLINE_TOKEN or --token-file)
+  replay --live FILE [--baseline FILE] [--plan FILE] [--url ws://HOST:PORT/feed] [--speed X]
+         [--overlap N] [--token-file F]
+      send recorded runs to a running service at their recorded pace times --speed
 
 exit codes: 0 success, 2 bad input or usage, 3 internal failure`;
 
@@ -109,9 +126,14 @@ async function run(argv: string[]): Promise<number> {
       const which = rest[0];
       if (which === 'plan') process.stdout.write(`${JSON.stringify(planJsonSchema(), null, 2)}\n`);
       else if (which === 'assessment') process.stdout.write(`${JSON.stringify(z.toJSONSchema(assessmentReportSchema, { io: 'output' }), null, 2)}\n`);
-      else throw new UsageError(`schema: expected "plan" or "assessment", got ${which ?? 'nothing'}`);
+      else if (which === 'protocol') process.stdout.write(`${JSON.stringify(protocolJsonSchema(), null, 2)}\n`);
+      else throw new UsageError(`schema: expected "plan", "assessment" or "protocol", got ${which ?? 'nothing'}`);
       return EXIT_OK;
     }
+    case 'serve':
+      return serve(rest);
+    case 'replay':
+      return replayCommand(rest);
     case undefined:
     case 'help':
     case '--help':
@@ -123,12 +145,121 @@ async function run(argv: string[]): Promise<number> {
   }
 }
 
+export const DEFAULT_PORT = 7340;
+
+function token(values: { 'token-file'?: string | boolean }): string | undefined {
+  if (typeof values['token-file'] === 'string') {
+    try {
+      return readFileSync(values['token-file'], 'utf8').trim();
+    } catch (e) {
+      throw new UsageError(`cannot read the token file ${values['token-file']}: ${e instanceof Error ? e.message : String(e)}`);
+    }
+  }
+  const env = process.env.PLUMBLINE_TOKEN;
+  return env && env.length > 0 ? env : undefined;
+}
+
+function port(value: string | boolean | undefined, fallback: number): number {
+  const n = integer(value, 'port', fallback);
+  if (n > 65535) throw new UsageError(`--port must be at most 65535, got ${n}`);
+  return n;
+}
+
+async function serve(args: string[]): Promise<number> {
+  const { values } = parse(args, {
+    plan: { type: 'string' },
+    baseline: { type: 'string' },
+    journal: { type: 'string' },
+    host: { type: 'string' },
+    port: { type: 'string' },
+    'token-file': { type: 'string' },
+    'allow-origin': { type: 'string', multiple: true },
+    durability: { type: 'string' },
+  });
+  const durability = values.durability;
+  if (durability !== undefined && durability !== 'normal' && durability !== 'full') throw new UsageError('--durability must be "normal" or "full"');
+  const progress = terminalProgress();
+  const server = await startServer({
+    planPath: typeof values.plan === 'string' ? values.plan : undefined,
+    baselinePath: typeof values.baseline === 'string' ? values.baseline : undefined,
+    journalPath: typeof values.journal === 'string' ? values.journal : join('.plumbline', 'journal.sqlite'),
+    host: typeof values.host === 'string' ? values.host : '127.0.0.1',
+    port: port(values.port, DEFAULT_PORT),
+    token: token(values),
+    allowedOrigins: Array.isArray(values['allow-origin']) ? values['allow-origin'].filter((x): x is string => typeof x === 'string') : [],
+    durability,
+    staticDir: dashboardDir(),
+    log: (line) => process.stderr.write(`${line}\n`),
+    onProgress: (label, d, t) => progress.update(label, d, t),
+  });
+  progress.done();
+  process.stderr.write(`plumbline is serving ${server.url}  (feed: ws://${server.url.slice(7)}/feed)\n`);
+  await new Promise<void>((res) => {
+    const stop = () => res();
+    process.once('SIGINT', stop);
+    process.once('SIGTERM', stop);
+  });
+  process.stderr.write('stopping: committing the journal\n');
+  await server.close();
+  return EXIT_OK;
+}
+
+/** The built dashboard, next to the compiled service (dist/dashboard) when present. */
+export function dashboardDir(): string {
+  return new URL('../../dashboard/', import.meta.url).pathname;
+}
+
+async function replayCommand(args: string[]): Promise<number> {
+  const { values } = parse(args, {
+    live: { type: 'string' },
+    baseline: { type: 'string' },
+    plan: { type: 'string' },
+    url: { type: 'string' },
+    speed: { type: 'string' },
+    overlap: { type: 'string' },
+    'token-file': { type: 'string' },
+  });
+  const url = typeof values.url === 'string' ? values.url : `ws://127.0.0.1:${DEFAULT_PORT}/feed`;
+  const planPath = typeof values.plan === 'string' ? values.plan : undefined;
+  const plan = planPath ? await loadPlan(planPath) : await fetchPlan(url);
+  const live = (await readTracks(required(values.live, 'live'), plan)).tracks;
+  const sims = typeof values.baseline === 'string' ? (await readTracks(values.baseline, plan)).tracks : undefined;
+  const speed = values.speed === undefined ? 1 : Number(values.speed);
+  if (!(speed >= 0)) throw new UsageError(`--speed must be a number >= 0, got ${String(values.speed)}`);
+  const summary = await replay({
+    url,
+    token: token(values),
+    plan,
+    live,
+    sims,
+    speed,
+    overlap: integer(values.overlap, 'overlap', 1),
+    onEvent: (line) => process.stderr.write(`${line}\n`),
+  });
+  process.stderr.write(`replayed ${summary.points} points in ${summary.tracks} tracks (${summary.reconnects} reconnects, ${summary.errors} errors)\n`);
+  return summary.errors > 0 ? EXIT_INPUT : EXIT_OK;
+}
+
+/** The plan of a running server, from its state endpoint (channel names and vignettes suffice). */
+async function fetchPlan(feedUrl: string): Promise<import('../plan.js').EventPlan> {
+  const http = feedUrl.replace(/^ws/, 'http').replace(/\/feed$/, '');
+  const res = await fetch(`${http}/api/plan`).catch((e: unknown) => {
+    throw new UsageError(`cannot reach ${http}: ${e instanceof Error ? e.message : String(e)}; give --plan`);
+  });
+  if (!res.ok) throw new UsageError(`${http}/api/plan answered ${res.status}; give --plan`);
+  return (await res.json()) as import('../plan.js').EventPlan;
+}
+
 export async function main(argv: string[]): Promise<number> {
   try {
     return await run(argv);
   } catch (e) {
     if (e instanceof UsageError) {
       process.stderr.write(`plumbline: ${e.message}\n\n${USAGE}\n`);
+      return EXIT_INPUT;
+    }
+    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError) {
+      process.stderr.write(`plumbline: ${e.message}\n`);
       return EXIT_INPUT;
     }
     if (e instanceof InputError) {

@@ -1,0 +1,179 @@
+/**
+ * Main-thread side of the computation worker: a small scheduler.
+ *
+ * - Ordered work (simulated tracks, baseline fits, final judgements) runs first-in first-out, so
+ *   a fit always sees the tracks sent before it; a fit already waiting for a vignette is not queued
+ *   twice (callers share its result).
+ * - Provisional judgements of runs in flight wait until no ordered work is pending, and only the
+ *   newest request per run is kept: an older one that never started resolves to `undefined`.
+ * One request is in the worker at a time. With `inProcess` the same code runs on the calling
+ * thread (used by tests that need no worker).
+ */
+import { createRequire } from 'node:module';
+import { pathToFileURL } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import type { RawTrack } from '../../engine/types.js';
+import { Compute, type AssessResult, type ComputeConfig, type FitResult } from './compute.js';
+
+export type WorkerRequest =
+  | { kind: 'sims'; id: number; vignette: string; tracks: RawTrack[] }
+  | { kind: 'fit'; id: number; vignette: string }
+  | { kind: 'assess'; id: number; vignette: string; run: RawTrack; mode: 'final' | 'provisional' };
+
+export type WorkerReply =
+  | { kind: 'sims'; id: number; vignette: string; count: number }
+  | { kind: 'fit'; id: number; result: FitResult }
+  | { kind: 'assess'; id: number; result: AssessResult }
+  | { kind: 'failed'; id: number; message: string };
+
+interface Job {
+  readonly request: WorkerRequest;
+  readonly resolve: (reply: WorkerReply | undefined) => void;
+  readonly reject: (error: Error) => void;
+}
+
+type Distributive<T> = T extends unknown ? Omit<T, 'id'> : never;
+
+export class Assessor {
+  private readonly worker?: Worker;
+  private readonly local?: Compute;
+  private readonly ordered: Job[] = [];
+  private readonly provisional = new Map<string, Job>();
+  private readonly pendingFits = new Map<string, Promise<FitResult>>();
+  private busy?: Job;
+  private nextId = 1;
+  private failure?: Error;
+
+  constructor(config: ComputeConfig, options: { inProcess?: boolean } = {}) {
+    if (options.inProcess) {
+      this.local = new Compute(config);
+      return;
+    }
+    const source = import.meta.url.endsWith('.ts');
+    const url = new URL(`./compute-worker${source ? '.ts' : '.js'}`, import.meta.url);
+    if (source) {
+      // Running from TypeScript sources (tests, tsx): load the worker through tsx's loader.
+      const api = pathToFileURL(createRequire(import.meta.url).resolve('tsx/esm/api').replace(/\.cjs$/, '.mjs')).href;
+      const boot = `import(${JSON.stringify(api)}).then((m) => { m.register(); return import(${JSON.stringify(url.href)}); });`;
+      this.worker = new Worker(boot, { eval: true, workerData: config });
+    } else {
+      this.worker = new Worker(url, { workerData: config });
+    }
+    this.worker.on('message', (reply: WorkerReply) => this.finish(reply));
+    this.worker.on('error', (e) => this.fail(e instanceof Error ? e : new Error(String(e))));
+    this.worker.on('exit', (code) => {
+      if (code !== 0) this.fail(new Error(`computation worker exited with code ${code}`));
+    });
+  }
+
+  get broken(): Error | undefined {
+    return this.failure;
+  }
+
+  addSims(vignette: string, tracks: RawTrack[]): Promise<number> {
+    return this.enqueue({ kind: 'sims', vignette, tracks }).then((r) => (r?.kind === 'sims' ? r.count : 0));
+  }
+
+  fit(vignette: string): Promise<FitResult> {
+    const waiting = this.pendingFits.get(vignette);
+    if (waiting) return waiting;
+    const p = this.enqueue({ kind: 'fit', vignette }).then((r) => {
+      if (r?.kind !== 'fit') throw new Error('fit: unexpected reply');
+      return r.result;
+    });
+    this.pendingFits.set(vignette, p);
+    return p;
+  }
+
+  /** Final judgements are ordered; provisional ones are conflated per run (may resolve undefined). */
+  assess(vignette: string, run: RawTrack, mode: 'final' | 'provisional'): Promise<AssessResult | undefined> {
+    const request = { kind: 'assess' as const, vignette, run, mode };
+    const p = mode === 'final' ? this.enqueue(request) : this.enqueueProvisional(`${vignette}\u0000${run.track}`, request);
+    return p.then((r) => (r?.kind === 'assess' ? r.result : undefined));
+  }
+
+  /** Pending work, for the state view and tests. */
+  get queued(): { ordered: number; provisional: number; busy: boolean } {
+    return { ordered: this.ordered.length, provisional: this.provisional.size, busy: this.busy !== undefined };
+  }
+
+  async close(): Promise<void> {
+    this.fail(new Error('assessor closed'));
+    await this.worker?.terminate();
+  }
+
+  private enqueue(request: Distributive<WorkerRequest>): Promise<WorkerReply | undefined> {
+    return new Promise((resolve, reject) => {
+      if (this.failure) return reject(this.failure);
+      this.ordered.push({ request: { ...request, id: this.nextId++ } as WorkerRequest, resolve, reject });
+      this.pump();
+    });
+  }
+
+  private enqueueProvisional(key: string, request: Distributive<WorkerRequest>): Promise<WorkerReply | undefined> {
+    return new Promise((resolve, reject) => {
+      if (this.failure) return reject(this.failure);
+      this.provisional.get(key)?.resolve(undefined);
+      this.provisional.set(key, { request: { ...request, id: this.nextId++ } as WorkerRequest, resolve, reject });
+      this.pump();
+    });
+  }
+
+  private pump(): void {
+    if (this.busy || this.failure) return;
+    let job = this.ordered.shift();
+    if (!job) {
+      const first = this.provisional.entries().next();
+      if (first.done) return;
+      this.provisional.delete(first.value[0]);
+      job = first.value[1];
+    }
+    this.busy = job;
+    if (job.request.kind === 'fit') this.pendingFits.delete(job.request.vignette);
+    if (this.worker) {
+      this.worker.postMessage(job.request);
+    } else {
+      const req = job.request;
+      // In-process: run on a later turn so callers see the same asynchrony as with the worker.
+      setImmediate(() => {
+        try {
+          this.finish(this.runLocal(req));
+        } catch (e) {
+          this.finish({ kind: 'failed', id: req.id, message: e instanceof Error ? (e.stack ?? e.message) : String(e) });
+        }
+      });
+    }
+  }
+
+  private runLocal(req: WorkerRequest): WorkerReply {
+    const c = this.local as Compute;
+    switch (req.kind) {
+      case 'sims':
+        return { kind: 'sims', id: req.id, vignette: req.vignette, count: c.addSims(req.vignette, req.tracks) };
+      case 'fit':
+        return { kind: 'fit', id: req.id, result: c.fit(req.vignette) };
+      case 'assess':
+        return { kind: 'assess', id: req.id, result: c.assess(req.vignette, req.run, req.mode) };
+    }
+  }
+
+  private finish(reply: WorkerReply): void {
+    const job = this.busy;
+    this.busy = undefined;
+    if (job) {
+      if (reply.kind === 'failed') job.reject(new Error(`computation failed: ${reply.message}`));
+      else job.resolve(reply);
+    }
+    this.pump();
+  }
+
+  private fail(error: Error): void {
+    if (this.failure) return;
+    this.failure = error;
+    const all = [...(this.busy ? [this.busy] : []), ...this.ordered, ...this.provisional.values()];
+    this.busy = undefined;
+    this.ordered.length = 0;
+    this.provisional.clear();
+    for (const j of all) j.reject(error);
+  }
+}

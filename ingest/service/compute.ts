@@ -1,0 +1,164 @@
+/**
+ * The computations the service runs off the event loop, as one pure-ish object per process: it
+ * holds the simulated tracks of every vignette, fits baselines and judges runs. The worker thread
+ * (./compute-worker.ts) wraps it; tests can call it directly. All statistics come from engine/.
+ */
+import { assessRun, baselineEnvelope, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from '../../engine/assess.js';
+import { meanCurve, rmsDeviation, summariseBaseline, type ModelSummary } from '../../engine/event.js';
+import type { ChannelEnvelope } from '../../engine/envelope.js';
+import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
+import { fitProjectionModel, projectRemainder, type Projection, type ProjectionModel } from '../../engine/projection.js';
+import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
+
+export interface ComputeConfig {
+  readonly vignettes: ReadonlyArray<{ id: string; horizon: number }>;
+  readonly channels: readonly ChannelSpec[];
+  readonly analysis: AnalysisSettings;
+  /** Provisional windows end on multiples of this (s). */
+  readonly provisionalStep: number;
+}
+
+export interface FitResult {
+  readonly vignette: string;
+  readonly sims: number;
+  readonly summary?: ModelSummary;
+  readonly envelope?: ChannelEnvelope[];
+  readonly grid?: Float64Array;
+  readonly error?: string;
+  readonly ms: number;
+}
+
+export interface AssessResult {
+  readonly vignette: string;
+  readonly track: string;
+  readonly mode: 'final' | 'provisional';
+  /** Track time up to which the run was judged (provisional), or its last sample (final). */
+  readonly upTo: number;
+  readonly samples: number;
+  readonly assessment?: RunAssessment;
+  readonly rms?: number[];
+  readonly projection?: Projection;
+  /** Scores of the simulated runs and of this run on the first two components of the shared fit. */
+  readonly scoreCloud?: { sims: [number[], number[]]; run: [number, number]; eigenvalues: [number, number] };
+  readonly error?: string;
+  readonly ms: number;
+}
+
+interface VignetteState {
+  spec: { id: string; horizon: number };
+  sims: Map<string, RawTrack>;
+  baseline?: Baseline;
+  simMean?: Float64Array;
+  projection?: ProjectionModel;
+  windows: Map<string, Float64Array[]>;
+}
+
+const WINDOW_CACHE = 48;
+
+export class Compute {
+  private readonly vignettes = new Map<string, VignetteState>();
+
+  constructor(private readonly config: ComputeConfig) {
+    for (const v of config.vignettes) this.vignettes.set(v.id, { spec: v, sims: new Map(), windows: new Map() });
+  }
+
+  private vignette(id: string): VignetteState {
+    const v = this.vignettes.get(id);
+    if (!v) throw new NotAssessableError(`vignette ${id} is not in the plan`);
+    return v;
+  }
+
+  addSims(vignette: string, tracks: readonly RawTrack[]): number {
+    const v = this.vignette(vignette);
+    for (const t of tracks) v.sims.set(t.track, t);
+    return v.sims.size;
+  }
+
+  /** (Re)fit a vignette's baseline from all its simulated tracks (in track-id order, as the file reader gives them). */
+  fit(vignette: string): FitResult {
+    const start = performance.now();
+    const v = this.vignette(vignette);
+    const sims = [...v.sims.values()].sort((a, b) => (a.track < b.track ? -1 : a.track > b.track ? 1 : 0));
+    v.windows.clear();
+    try {
+      const baseline = buildBaseline(v.spec.id, v.spec.horizon, this.config.channels, sims, this.config.analysis);
+      if (baseline.curves.length < 19) throw new NotAssessableError(`vignette ${vignette} has ${baseline.curves.length} usable simulated tracks; at least 19 are needed`);
+      v.baseline = baseline;
+      v.simMean = meanCurve(baseline.curves);
+      v.projection = fitProjectionModel(baseline.curves, windowWeights(baseline.grid, fullWindow(baseline.horizon)), this.config.channels.length);
+      return {
+        vignette,
+        sims: sims.length,
+        summary: summariseBaseline(baseline),
+        envelope: baselineEnvelope(baseline),
+        grid: baseline.grid.points,
+        ms: performance.now() - start,
+      };
+    } catch (e) {
+      v.baseline = undefined;
+      v.simMean = undefined;
+      v.projection = undefined;
+      return { vignette, sims: sims.length, error: e instanceof Error ? e.message : String(e), ms: performance.now() - start };
+    }
+  }
+
+  /** The prefix window of a run in flight: [0, t_q] with t_q on the provisional step, when clean. */
+  private provisionalWindow(run: RawTrack, v: VignetteState & { baseline: Baseline }): { window: TrackWindow; upTo: number; cut: RawTrack } | undefined {
+    const step = this.config.provisionalStep;
+    const last = run.t[run.t.length - 1] ?? 0;
+    const upTo = Math.floor(last / step) * step;
+    if (upTo < step) return undefined;
+    let n = 0;
+    while (n < run.t.length && run.t[n] <= upTo) n++;
+    const cut: RawTrack = { ...run, t: run.t.subarray(0, n), values: run.values.map((x) => x.subarray(0, n)) };
+    const own = observedWindow(cut.t, v.baseline.horizon, this.config.analysis.gapFactor, v.baseline.grid.step);
+    const edge = Math.max(v.baseline.grid.step, 2);
+    const clean = own.gaps.length === 0 && cut.t.length > 0 && cut.t[0] <= edge;
+    const window: TrackWindow = clean ? { intervals: [[0, upTo]], span: own.span, gaps: [], partial: upTo < v.baseline.horizon, full: false, nominalInterval: own.nominalInterval } : own;
+    return { window, upTo, cut };
+  }
+
+  assess(vignette: string, run: RawTrack, mode: 'final' | 'provisional'): AssessResult {
+    const start = performance.now();
+    const v = this.vignette(vignette);
+    const base = { vignette, track: run.track, mode, samples: run.t.length };
+    const last = run.t[run.t.length - 1] ?? 0;
+    if (!v.baseline || !v.simMean || !v.projection) {
+      return { ...base, upTo: last, error: `the baseline of vignette ${vignette} is not ready`, ms: performance.now() - start };
+    }
+    const ready = v as VignetteState & { baseline: Baseline };
+    try {
+      let assessment: RunAssessment;
+      let upTo = last;
+      if (mode === 'final') {
+        assessment = assessRun(ready.baseline, run);
+      } else {
+        const p = this.provisionalWindow(run, ready);
+        if (!p) return { ...base, upTo: 0, error: 'not enough of the run yet', ms: performance.now() - start };
+        upTo = p.upTo;
+        const key = windowKey(p.window);
+        let curves = v.windows.get(key);
+        if (!curves) {
+          curves = curvesForWindow(ready.baseline, p.window).curves;
+          v.windows.set(key, curves);
+          if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
+        }
+        assessment = assessRun(ready.baseline, p.cut, { window: p.window, windowCurves: curves });
+      }
+      const projection = projectRemainder(v.projection, assessment.curve, assessment.active);
+      const m = assessment.result.model;
+      const N = m.n - 1;
+      const k2 = Math.min(2, m.eigenvalues.length);
+      const col = (k: number) => (k < k2 ? Array.from({ length: N }, (_, i) => m.scores[i][k]) : new Array<number>(N).fill(0));
+      const scoreCloud = {
+        sims: [col(0), col(1)] as [number[], number[]],
+        run: [k2 > 0 ? m.scores[N][0] : 0, k2 > 1 ? m.scores[N][1] : 0] as [number, number],
+        eigenvalues: [m.eigenvalues[0] ?? 0, m.eigenvalues[1] ?? 0] as [number, number],
+      };
+      return { ...base, upTo, assessment, rms: rmsDeviation(assessment, ready.baseline, v.simMean), projection, scoreCloud, ms: performance.now() - start };
+    } catch (e) {
+      if (!(e instanceof NotAssessableError)) throw e;
+      return { ...base, upTo: last, error: e.message, ms: performance.now() - start };
+    }
+  }
+}

@@ -1,0 +1,195 @@
+/**
+ * The journal: every accepted point, track, result, note and flag, committed to SQLite (WAL)
+ * before it is acknowledged. On start the service rebuilds its whole state from it.
+ *
+ * SQLite via better-sqlite3 12 (13 needs Node 22). WAL with synchronous=NORMAL: a committed
+ * transaction survives a process crash or kill -9 (it is in the -wal file); after a power loss the
+ * last commits may roll back but the file stays consistent (sqlite.org/pragma.html#pragma_synchronous).
+ * `durability: 'full'` switches to synchronous=FULL for power-loss safety at a cost in throughput.
+ * One writer connection; the SQLite version is checked (≥ 3.51.3, the WAL-reset fix).
+ */
+import Database from 'better-sqlite3';
+import { mkdirSync } from 'node:fs';
+import { dirname } from 'node:path';
+
+export const JOURNAL_SCHEMA_VERSION = 1;
+const MIN_SQLITE = [3, 51, 3];
+
+export interface JournalTrack {
+  readonly id: number;
+  readonly vignette: string;
+  readonly track: string;
+  readonly source: 'live' | 'sim';
+  readonly channels: string[];
+  readonly openedAt: number;
+  readonly closedAt: number | null;
+  readonly lastSeq: number | null;
+}
+
+export interface JournalPoint {
+  readonly trackId: number;
+  readonly seq: number;
+  readonly t: number;
+  readonly values: Float64Array;
+}
+
+export interface JournalLogEntry {
+  readonly id: number;
+  readonly at: number;
+  readonly kind: string;
+  readonly vignette: string | null;
+  readonly track: string | null;
+  readonly t: number | null;
+  readonly body: unknown;
+}
+
+export class JournalError extends Error {
+  constructor(readonly code: 'JOURNAL_UNWRITABLE' | 'JOURNAL_VERSION' | 'JOURNAL_SQLITE' | 'JOURNAL_PLAN_MISMATCH', message: string) {
+    super(message);
+    this.name = 'JournalError';
+  }
+}
+
+function versionAtLeast(v: string, min: number[]): boolean {
+  const parts = v.split('.').map(Number);
+  for (let i = 0; i < min.length; i++) {
+    if ((parts[i] ?? 0) > min[i]) return true;
+    if ((parts[i] ?? 0) < min[i]) return false;
+  }
+  return true;
+}
+
+export class Journal {
+  private readonly db: Database.Database;
+  private readonly insertPoint: Database.Statement;
+  private readonly insertTrack: Database.Statement;
+  private readonly closeStmt: Database.Statement;
+  private readonly resultStmt: Database.Statement;
+  private readonly logStmt: Database.Statement;
+  private readonly metaStmt: Database.Statement;
+  private readonly commitMany: (points: readonly JournalPoint[]) => void;
+
+  private constructor(db: Database.Database) {
+    this.db = db;
+    this.insertPoint = db.prepare('INSERT OR IGNORE INTO points(track_id, seq, t, v) VALUES (?, ?, ?, ?)');
+    this.insertTrack = db.prepare('INSERT INTO tracks(vignette, track, source, channels, opened_at) VALUES (?, ?, ?, ?, ?)');
+    this.closeStmt = db.prepare('UPDATE tracks SET closed_at = ?, last_seq = ? WHERE id = ?');
+    this.resultStmt = db.prepare('INSERT OR REPLACE INTO results(track_id, body) VALUES (?, ?)');
+    this.logStmt = db.prepare('INSERT INTO log(at, kind, vignette, track, t, body) VALUES (?, ?, ?, ?, ?, ?)');
+    this.metaStmt = db.prepare('INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)');
+    this.commitMany = db.transaction((points: readonly JournalPoint[]) => {
+      for (const p of points) this.insertPoint.run(p.trackId, p.seq, p.t, Buffer.from(p.values.buffer, p.values.byteOffset, p.values.byteLength));
+    });
+  }
+
+  static open(path: string, options: { durability?: 'normal' | 'full' } = {}): Journal {
+    let db: Database.Database;
+    try {
+      if (path !== ':memory:') mkdirSync(dirname(path), { recursive: true });
+      db = new Database(path);
+    } catch (e) {
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot open the journal ${path}: ${e instanceof Error ? e.message : String(e)}`);
+    }
+    const version = (db.prepare('SELECT sqlite_version() AS v').get() as { v: string }).v;
+    if (!versionAtLeast(version, MIN_SQLITE)) {
+      db.close();
+      throw new JournalError('JOURNAL_SQLITE', `SQLite ${version} is older than ${MIN_SQLITE.join('.')} (WAL-reset bug)`);
+    }
+    try {
+      db.pragma('journal_mode = WAL');
+      db.pragma(`synchronous = ${options.durability === 'full' ? 'FULL' : 'NORMAL'}`);
+      db.exec(`
+        CREATE TABLE IF NOT EXISTS meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
+        CREATE TABLE IF NOT EXISTS tracks(
+          id INTEGER PRIMARY KEY, vignette TEXT NOT NULL, track TEXT NOT NULL, source TEXT NOT NULL,
+          channels TEXT NOT NULL, opened_at REAL NOT NULL, closed_at REAL, last_seq INTEGER,
+          UNIQUE(vignette, track));
+        CREATE TABLE IF NOT EXISTS points(
+          track_id INTEGER NOT NULL, seq INTEGER NOT NULL, t REAL NOT NULL, v BLOB NOT NULL,
+          PRIMARY KEY(track_id, seq)) WITHOUT ROWID;
+        CREATE TABLE IF NOT EXISTS results(track_id INTEGER PRIMARY KEY, body TEXT NOT NULL);
+        CREATE TABLE IF NOT EXISTS log(
+          id INTEGER PRIMARY KEY, at REAL NOT NULL, kind TEXT NOT NULL, vignette TEXT, track TEXT, t REAL, body TEXT NOT NULL);
+      `);
+    } catch (e) {
+      db.close();
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot prepare the journal ${path}: ${e instanceof Error ? e.message : String(e)}`);
+    }
+    const j = new Journal(db);
+    const stored = j.getMeta('schemaVersion');
+    if (stored !== undefined && Number(stored) !== JOURNAL_SCHEMA_VERSION) {
+      db.close();
+      throw new JournalError('JOURNAL_VERSION', `journal ${path} has schema version ${stored}; this build reads ${JOURNAL_SCHEMA_VERSION}`);
+    }
+    j.setMeta('schemaVersion', String(JOURNAL_SCHEMA_VERSION));
+    return j;
+  }
+
+  get sqliteVersion(): string {
+    return (this.db.prepare('SELECT sqlite_version() AS v').get() as { v: string }).v;
+  }
+
+  getMeta(key: string): string | undefined {
+    const row = this.db.prepare('SELECT value FROM meta WHERE key = ?').get(key) as { value: string } | undefined;
+    return row?.value;
+  }
+
+  setMeta(key: string, value: string): void {
+    this.metaStmt.run(key, value);
+  }
+
+  addTrack(vignette: string, track: string, source: 'live' | 'sim', channels: readonly string[], at: number): number {
+    const r = this.insertTrack.run(vignette, track, source, JSON.stringify(channels), at);
+    return Number(r.lastInsertRowid);
+  }
+
+  /** Commit a batch of accepted points in one transaction (duplicates by (track, seq) are ignored). */
+  commitPoints(points: readonly JournalPoint[]): void {
+    if (points.length > 0) this.commitMany(points);
+  }
+
+  closeTrack(trackId: number, lastSeq: number, at: number): void {
+    this.closeStmt.run(at, lastSeq, trackId);
+  }
+
+  saveResult(trackId: number, body: unknown): void {
+    this.resultStmt.run(trackId, JSON.stringify(body));
+  }
+
+  appendLog(at: number, kind: string, vignette: string | null, track: string | null, t: number | null, body: unknown): number {
+    return Number(this.logStmt.run(at, kind, vignette, track, t, JSON.stringify(body)).lastInsertRowid);
+  }
+
+  tracks(): JournalTrack[] {
+    const rows = this.db.prepare('SELECT id, vignette, track, source, channels, opened_at, closed_at, last_seq FROM tracks ORDER BY id').all() as Array<{
+      id: number; vignette: string; track: string; source: 'live' | 'sim'; channels: string; opened_at: number; closed_at: number | null; last_seq: number | null;
+    }>;
+    return rows.map((r) => ({ id: r.id, vignette: r.vignette, track: r.track, source: r.source, channels: JSON.parse(r.channels) as string[], openedAt: r.opened_at, closedAt: r.closed_at, lastSeq: r.last_seq }));
+  }
+
+  /** All points of all tracks, in (track, seq) order, one callback per point (bounded memory). */
+  eachPoint(fn: (p: JournalPoint) => void): void {
+    for (const row of this.db.prepare('SELECT track_id, seq, t, v FROM points ORDER BY track_id, seq').iterate() as Iterable<{ track_id: number; seq: number; t: number; v: Buffer }>) {
+      const copy = new Float64Array(row.v.byteLength / 8);
+      new Uint8Array(copy.buffer).set(row.v);
+      fn({ trackId: row.track_id, seq: row.seq, t: row.t, values: copy });
+    }
+  }
+
+  results(): Map<number, unknown> {
+    const rows = this.db.prepare('SELECT track_id, body FROM results').all() as Array<{ track_id: number; body: string }>;
+    return new Map(rows.map((r) => [r.track_id, JSON.parse(r.body) as unknown]));
+  }
+
+  log(): JournalLogEntry[] {
+    const rows = this.db.prepare('SELECT id, at, kind, vignette, track, t, body FROM log ORDER BY id').all() as Array<{ id: number; at: number; kind: string; vignette: string | null; track: string | null; t: number | null; body: string }>;
+    return rows.map((r) => ({ id: r.id, at: r.at, kind: r.kind, vignette: r.vignette, track: r.track, t: r.t, body: JSON.parse(r.body) as unknown }));
+  }
+
+  close(): void {
+    if (this.db.open) {
+      this.db.pragma('wal_checkpoint(TRUNCATE)');
+      this.db.close();
+    }
+  }
+}

@@ -1,0 +1,388 @@
+/**
+ * `plumbline serve`: one process with HTTP and WebSocket.
+ *
+ *   /feed   WebSocket for producers (open, points, close, note)
+ *   /watch  WebSocket for dashboards: a snapshot, then conflated deltas; may send notes only
+ *   GET /api/state, /api/runs/:vignette/:track, /api/export, /api/plan, /api/schema/protocol, /healthz
+ *   GET /   the dashboard's static files (when built)
+ *
+ * Pipeline: socket frames → parse (never throws) → EventService.receive (validate, stage) →
+ * batchPerTurn → EventService.flush (one journal transaction, then acks) ; EventService.changes$
+ * → conflatePerKey (each run at most `dashboardUpdatesPerSecond`) → every watcher's send queue,
+ * which keeps only the latest message per key while the socket's buffer is over the limit and
+ * drops the watcher if it stays there.
+ *
+ * Security defaults: loopback bind; binding elsewhere requires a producer token; producers must
+ * present it (Authorization: Bearer, or ?token=); browser connections must come from an allowed
+ * origin; frames larger than `maxPayload` close the connection (1009); a flooding peer is closed
+ * (1008). Every socket has an 'error' listener: a bad peer never takes the server down.
+ */
+import { createReadStream, existsSync, statSync } from 'node:fs';
+import { createServer, type IncomingMessage, type Server, type ServerResponse } from 'node:http';
+import type { Duplex } from 'node:stream';
+import { extname, join, normalize, resolve } from 'node:path';
+import { timingSafeEqual } from 'node:crypto';
+import { Subject } from 'rxjs';
+import { WebSocketServer, type WebSocket } from 'ws';
+import { loadPlan, type EventPlan } from '../plan.js';
+import { readTracks } from '../tracks-reader.js';
+import { Assessor } from './assessor.js';
+import { EventService, type Change, type Role } from './event-service.js';
+import { Journal, JournalError } from './journal.js';
+import { DEFAULT_LIMITS, type ServiceLimits } from './limits.js';
+import { batchPerTurn, conflatePerKey } from './operators.js';
+import { errorReply, parseClientMessage, protocolJsonSchema, type ServerReply } from './protocol.js';
+import type { WatchMessage } from './view.js';
+
+export interface ServeOptions {
+  readonly host?: string;
+  readonly port?: number;
+  /** Plan file; may be omitted when the journal already holds the plan. */
+  readonly planPath?: string;
+  readonly plan?: EventPlan;
+  readonly baselinePath?: string;
+  readonly journalPath: string;
+  /** Producer token; required when binding to a non-loopback address. */
+  readonly token?: string;
+  /** Allowed Origin values for browser connections (the server's own origin is always allowed). */
+  readonly allowedOrigins?: readonly string[];
+  readonly staticDir?: string;
+  readonly limits?: Partial<ServiceLimits>;
+  readonly durability?: 'normal' | 'full';
+  /** Run the statistics on the main thread (tests); the default is a worker thread. */
+  readonly inProcessCompute?: boolean;
+  readonly refitDelayMs?: number;
+  readonly log?: (line: string) => void;
+  readonly onProgress?: (label: string, done: number, total: number) => void;
+}
+
+export interface RunningServer {
+  readonly url: string;
+  readonly port: number;
+  readonly host: string;
+  readonly service: EventService;
+  readonly journal: Journal;
+  close(): Promise<void>;
+}
+
+export class ServeError extends Error {
+  constructor(readonly code: 'PORT_IN_USE' | 'TOKEN_REQUIRED' | 'PLAN_REQUIRED' | 'PLAN_MISMATCH' | 'LISTEN_FAILED', message: string) {
+    super(message);
+    this.name = 'ServeError';
+  }
+}
+
+const LOOPBACK = new Set(['127.0.0.1', 'localhost', '::1']);
+
+const MIME: Record<string, string> = {
+  '.html': 'text/html; charset=utf-8',
+  '.js': 'text/javascript; charset=utf-8',
+  '.css': 'text/css; charset=utf-8',
+  '.json': 'application/json',
+  '.svg': 'image/svg+xml',
+  '.png': 'image/png',
+  '.map': 'application/json',
+};
+
+interface Watcher {
+  readonly ws: WebSocket;
+  readonly queue: Map<string, WatchMessage>;
+  overSince?: number;
+}
+
+function canonicalPlan(plan: EventPlan): string {
+  return JSON.stringify(plan);
+}
+
+function sameToken(given: string | undefined, expected: string): boolean {
+  if (given === undefined) return false;
+  const a = Buffer.from(given);
+  const b = Buffer.from(expected);
+  return a.length === b.length && timingSafeEqual(a, b);
+}
+
+export async function startServer(options: ServeOptions): Promise<RunningServer> {
+  const limits: ServiceLimits = { ...DEFAULT_LIMITS, ...options.limits };
+  const host = options.host ?? '127.0.0.1';
+  const log = options.log ?? (() => undefined);
+  if (!LOOPBACK.has(host) && !options.token) {
+    throw new ServeError('TOKEN_REQUIRED', `binding to ${host} exposes the feed beyond this machine: give a producer token (PLUMBLINE_TOKEN or --token-file)`);
+  }
+
+  const journal = Journal.open(options.journalPath, { durability: options.durability });
+  let service: EventService | undefined;
+  let assessor: Assessor | undefined;
+  try {
+    // The plan: from the file, checked against the journal's when it has one.
+    const stored = journal.getMeta('plan');
+    let plan = options.plan ?? (options.planPath ? await loadPlan(options.planPath) : undefined);
+    if (!plan) {
+      if (!stored) throw new ServeError('PLAN_REQUIRED', 'no event plan: give --plan (the journal is new)');
+      plan = JSON.parse(stored) as EventPlan;
+    } else if (stored && stored !== canonicalPlan(plan)) {
+      throw new ServeError('PLAN_MISMATCH', `the journal ${options.journalPath} was written under another plan; use a new journal or the original plan`);
+    }
+    journal.setMeta('plan', canonicalPlan(plan));
+
+    assessor = new Assessor(
+      { vignettes: plan.vignettes, channels: plan.channels, analysis: plan.analysis, provisionalStep: limits.provisionalStep },
+      { inProcess: options.inProcessCompute },
+    );
+    service = new EventService({ plan, journal, assessor, limits, refitDelayMs: options.refitDelayMs });
+
+    const baselinePath = options.baselinePath ?? journal.getMeta('baselineFile');
+    if (baselinePath) {
+      if (!existsSync(baselinePath)) throw new ServeError('PLAN_REQUIRED', `the baseline file ${baselinePath} (recorded in the journal) is missing`);
+      const read = await readTracks(baselinePath, plan, { onProgress: (d, t) => options.onProgress?.('reading the baseline', d, t) });
+      journal.setMeta('baselineFile', resolve(baselinePath));
+      await service.loadBaseline(read.tracks, read.report, { fit: false });
+      log(`baseline: ${read.report.accepted} points in ${read.report.tracks} simulated tracks from ${baselinePath}`);
+    }
+    const restored = await service.restore(options.onProgress);
+    if (restored.tracks > 0) log(`journal: restored ${restored.tracks} tracks and ${restored.points} points from ${options.journalPath}`);
+  } catch (e) {
+    await assessor?.close();
+    journal.close();
+    throw e;
+  }
+  const svc = service;
+  const worker = assessor;
+  const activePlan = JSON.parse(journal.getMeta('plan') as string) as EventPlan;
+
+  // ------------------------------------------------------------- HTTP
+  const staticRoot = options.staticDir && existsSync(options.staticDir) ? resolve(options.staticDir) : undefined;
+  const sendJson = (res: ServerResponse, status: number, body: unknown) => {
+    const text = JSON.stringify(body);
+    res.writeHead(status, { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' });
+    res.end(text);
+  };
+  const handleHttp = (req: IncomingMessage, res: ServerResponse) => {
+    try {
+      const url = new URL(req.url ?? '/', 'http://localhost');
+      if (req.method !== 'GET' && req.method !== 'HEAD') return sendJson(res, 405, { error: 'METHOD_NOT_ALLOWED', reason: 'read-only endpoints: use GET' });
+      const path = url.pathname;
+      if (path === '/api/state') return sendJson(res, 200, svc.snapshot());
+      if (path === '/api/export') return sendJson(res, 200, svc.exportReport());
+      if (path === '/api/plan') return sendJson(res, 200, activePlan);
+      if (path === '/api/schema/protocol') return sendJson(res, 200, protocolJsonSchema());
+      if (path === '/healthz') return sendJson(res, 200, { ok: !worker.broken, worker: worker.broken?.message ?? 'running', queue: worker.queued, sqlite: journal.sqliteVersion });
+      const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);
+      if (run) {
+        const d = svc.detail(decodeURIComponent(run[1]), decodeURIComponent(run[2]));
+        return d ? sendJson(res, 200, d) : sendJson(res, 404, { error: 'NOT_FOUND', reason: `no run ${decodeURIComponent(run[1])}/${decodeURIComponent(run[2])}` });
+      }
+      if (path.startsWith('/api/')) return sendJson(res, 404, { error: 'NOT_FOUND', reason: `no endpoint ${path}` });
+      if (!staticRoot) {
+        res.writeHead(200, { 'content-type': 'text/plain; charset=utf-8' });
+        return res.end('plumbline is running. The dashboard is not built: run `npm run build`.\n');
+      }
+      const rel = normalize(decodeURIComponent(path === '/' ? '/index.html' : path)).replace(/^([/\\])+/, '');
+      const file = join(staticRoot, rel);
+      if (!file.startsWith(staticRoot) || !existsSync(file) || !statSync(file).isFile()) return sendJson(res, 404, { error: 'NOT_FOUND', reason: `no file ${path}` });
+      res.writeHead(200, { 'content-type': MIME[extname(file)] ?? 'application/octet-stream', 'cache-control': 'no-cache' });
+      createReadStream(file).pipe(res);
+    } catch (e) {
+      sendJson(res, 500, { error: 'INTERNAL', reason: e instanceof Error ? e.message : String(e) });
+    }
+  };
+  const server: Server = createServer(handleHttp);
+
+  // ------------------------------------------------------------- WebSocket
+  const wss = new WebSocketServer({ noServer: true, maxPayload: limits.maxPayload, perMessageDeflate: false });
+  const watchers = new Set<Watcher>();
+  const alive = new WeakMap<WebSocket, boolean>();
+  const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void }>();
+  const sub = inbound$
+    .pipe(batchPerTurn())
+    .subscribe((batch) => {
+      for (const m of batch) {
+        const parsed = parseClientMessage(m.text);
+        if (!parsed.ok) m.reply(parsed.error);
+        else {
+          try {
+            svc.receive(m.role, parsed.message, m.reply);
+          } catch (e) {
+            m.reply(errorReply('INTERNAL', e instanceof Error ? e.message : String(e), parsed.message.id));
+          }
+        }
+      }
+      svc.flush();
+    });
+
+  let ownOrigins: string[] = [];
+  const allowed = new Set(options.allowedOrigins ?? []);
+  const refuse = (socket: Duplex, status: number, text: string) => {
+    socket.write(`HTTP/1.1 ${status} ${text}\r\nConnection: close\r\nContent-Type: text/plain\r\n\r\n${text}\n`);
+    socket.destroy();
+  };
+  server.on('upgrade', (req, socket, head) => {
+    socket.on('error', () => socket.destroy());
+    const url = new URL(req.url ?? '/', 'http://localhost');
+    const role: Role | undefined = url.pathname === '/feed' ? 'producer' : url.pathname === '/watch' ? 'watcher' : undefined;
+    if (!role) return refuse(socket, 404, 'Not Found');
+    const origin = req.headers.origin;
+    if (origin !== undefined && !ownOrigins.includes(origin) && !allowed.has(origin)) return refuse(socket, 403, 'Forbidden');
+    if (role === 'producer' && options.token) {
+      const bearer = /^Bearer (.+)$/.exec(req.headers.authorization ?? '')?.[1] ?? url.searchParams.get('token') ?? undefined;
+      if (!sameToken(bearer, options.token)) return refuse(socket, 401, 'Unauthorized');
+    }
+    wss.handleUpgrade(req, socket, head, (ws) => onConnection(ws, role));
+  });
+
+  const send = (ws: WebSocket, msg: unknown) => {
+    if (ws.readyState === ws.OPEN) ws.send(JSON.stringify(msg));
+  };
+
+  const onConnection = (ws: WebSocket, role: Role) => {
+    alive.set(ws, true);
+    ws.on('pong', () => alive.set(ws, true));
+    ws.on('error', (e) => log(`socket error (${role}): ${e.message}`));
+    let tokens = limits.messageBurst;
+    let last = Date.now();
+    let strikes = 0;
+    const reply = (r: ServerReply) => send(ws, r);
+    ws.on('message', (data, isBinary) => {
+      const now = Date.now();
+      tokens = Math.min(limits.messageBurst, tokens + ((now - last) / 1000) * limits.messagesPerSecond);
+      last = now;
+      if (tokens < 1) {
+        strikes++;
+        if (strikes >= limits.floodStrikes) {
+          ws.close(1008, 'message flood');
+          return;
+        }
+        return reply(errorReply('RATE_LIMITED', `more than ${limits.messagesPerSecond} messages per second; this message was not processed`));
+      }
+      tokens -= 1;
+      strikes = 0;
+      if (isBinary) return reply(errorReply('BAD_MESSAGE', 'binary frames are not part of the protocol; send JSON text'));
+      inbound$.next({ role, text: data.toString(), reply });
+    });
+    if (role === 'watcher') {
+      const w: Watcher = { ws, queue: new Map() };
+      watchers.add(w);
+      ws.on('close', () => watchers.delete(w));
+      send(ws, { type: 'snapshot', state: svc.snapshot() } satisfies WatchMessage);
+    }
+  };
+
+  const drain = (w: Watcher) => {
+    const ws = w.ws;
+    if (ws.readyState !== ws.OPEN) return;
+    if (ws.bufferedAmount > limits.slowClientBytes) {
+      w.overSince ??= Date.now();
+      if (Date.now() - w.overSince > limits.slowClientGraceMs) {
+        log('dropping a dashboard that stopped reading');
+        ws.terminate();
+        watchers.delete(w);
+      }
+      return;
+    }
+    w.overSince = undefined;
+    for (const [k, m] of w.queue) {
+      w.queue.delete(k);
+      ws.send(JSON.stringify(m));
+      if (ws.bufferedAmount > limits.slowClientBytes) break;
+    }
+  };
+
+  const messageFor = (c: Change): [string, WatchMessage] | undefined => {
+    switch (c.kind) {
+      case 'run': {
+        const run = svc.runView(c.key);
+        return run ? [`run:${c.key}`, { type: 'run', run }] : undefined;
+      }
+      case 'vignette': {
+        const vignette = svc.vignetteView(c.id);
+        return vignette ? [`vignette:${c.id}`, { type: 'vignette', vignette }] : undefined;
+      }
+      case 'combined':
+        return ['combined', { type: 'combined', combined: svc.combinedEventView() }];
+      case 'log':
+        return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
+    }
+  };
+  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : 'combined');
+  const MAX_QUEUE = 5000;
+  const changesSub = svc.changes$
+    .pipe(conflatePerKey(changeKey, 1000 / limits.dashboardUpdatesPerSecond, { idleMs: 60_000, isLast: (c) => c.kind === 'log' }))
+    .subscribe((c) => {
+      const m = messageFor(c);
+      if (!m) return;
+      for (const w of watchers) {
+        w.queue.set(m[0], m[1]);
+        if (w.queue.size > MAX_QUEUE) {
+          w.ws.terminate();
+          watchers.delete(w);
+          continue;
+        }
+        drain(w);
+      }
+    });
+  const drainTimer = setInterval(() => {
+    for (const w of watchers) if (w.queue.size > 0) drain(w);
+  }, 100);
+  const heartbeat = setInterval(() => {
+    for (const ws of wss.clients) {
+      if (alive.get(ws) === false) {
+        ws.terminate();
+        continue;
+      }
+      alive.set(ws, false);
+      ws.ping();
+    }
+  }, limits.heartbeatMs);
+
+  await new Promise<void>((res, rej) => {
+    const onError = (e: NodeJS.ErrnoException) => {
+      rej(e.code === 'EADDRINUSE' ? new ServeError('PORT_IN_USE', `port ${options.port ?? 0} on ${host} is already in use: pick another with --port`) : new ServeError('LISTEN_FAILED', `cannot listen on ${host}:${options.port ?? 0}: ${e.message}`));
+    };
+    server.once('error', onError);
+    server.listen(options.port ?? 0, host, () => {
+      server.off('error', onError);
+      res();
+    });
+  }).catch(async (e: unknown) => {
+    clearInterval(heartbeat);
+    clearInterval(drainTimer);
+    sub.unsubscribe();
+    changesSub.unsubscribe();
+    svc.shutdown();
+    await worker.close();
+    journal.close();
+    throw e;
+  });
+  const address = server.address();
+  const port = typeof address === 'object' && address ? address.port : (options.port ?? 0);
+  const shownHost = host.includes(':') ? `[${host}]` : host;
+  ownOrigins = [`http://${shownHost}:${port}`, `http://localhost:${port}`, `http://127.0.0.1:${port}`];
+
+  let closing: Promise<void> | undefined;
+  return {
+    url: `http://${shownHost}:${port}`,
+    port,
+    host,
+    service: svc,
+    journal,
+    close() {
+      closing ??= (async () => {
+        clearInterval(heartbeat);
+        clearInterval(drainTimer);
+        for (const ws of wss.clients) ws.terminate();
+        wss.close();
+        const closed = new Promise<void>((r) => server.close(() => r()));
+        server.closeAllConnections();
+        await closed;
+        sub.unsubscribe();
+        changesSub.unsubscribe();
+        svc.flush();
+        svc.shutdown();
+        await worker.close();
+        journal.close();
+      })();
+      return closing;
+    },
+  };
+}
+
+export { JournalError };

@@ -1,0 +1,129 @@
+/**
+ * What dashboards and scripts see of the event: plain JSON shapes, sent as a snapshot and then as
+ * deltas over /watch, and served by the HTTP read endpoints. Provisional values (a run still in
+ * flight) are always marked `provisional`; only final values enter combined evidence.
+ */
+import type { ChannelEnvelope } from '../../engine/envelope.js';
+
+export interface PValues {
+  readonly l2: number;
+  readonly score: number;
+  readonly residual: number;
+  readonly overall: number;
+}
+
+export interface Judgement {
+  readonly kind: 'provisional' | 'final';
+  /** Track time up to which the run was judged, s. */
+  readonly upTo: number;
+  readonly pValues: PValues;
+  readonly statistics: { readonly l2: number; readonly score: number; readonly residual: number };
+  readonly simsUsed: number;
+  readonly components: number;
+  readonly flags: readonly string[];
+  /** RMS deviation from the simulated mean per channel (channel units). */
+  readonly rms: readonly number[];
+}
+
+export interface RunView {
+  readonly key: string;
+  readonly vignette: string;
+  readonly track: string;
+  readonly source: 'live' | 'sim';
+  readonly status: 'in-flight' | 'complete';
+  readonly points: number;
+  readonly lastT: number;
+  /** Server clock (ms since the epoch) when the run was opened / closed. */
+  readonly openedAt: number;
+  readonly closedAt?: number;
+  readonly judgement?: Judgement;
+  /** Why the run could not be judged (yet). */
+  readonly notJudged?: string;
+  readonly flags: readonly string[];
+  readonly notes: number;
+}
+
+export interface VignetteView {
+  readonly id: string;
+  readonly label?: string;
+  readonly horizon: number;
+  readonly condition?: Readonly<Record<string, string | number>>;
+  readonly baseline: {
+    readonly status: 'waiting' | 'fitting' | 'ready' | 'failed';
+    readonly sims: number;
+    readonly components?: number;
+    readonly varianceExplained?: number;
+    readonly reason?: string;
+  };
+  readonly combined?: CombinedView;
+}
+
+export interface CombinedView {
+  readonly method: string;
+  readonly statistic: number;
+  readonly pValue: number;
+  readonly count: number;
+  /** Fixed-sample combination: valid only for a run count fixed in advance. */
+  readonly note: string;
+}
+
+export interface LogEntryView {
+  readonly id: number;
+  readonly at: number;
+  readonly kind: 'note' | 'flag' | 'event';
+  readonly vignette?: string;
+  readonly track?: string;
+  readonly t?: number;
+  readonly text: string;
+  readonly author?: string;
+}
+
+export interface EventView {
+  readonly plan: {
+    readonly name: string;
+    readonly alpha: number;
+    readonly combination: string;
+    readonly channels: ReadonlyArray<{ name: string; unit: string }>;
+  };
+  readonly vignettes: readonly VignetteView[];
+  readonly runs: readonly RunView[];
+  readonly combined?: CombinedView & { readonly alpha: number; readonly distinguishable: boolean };
+  readonly log: readonly LogEntryView[];
+  readonly cautions: readonly string[];
+}
+
+/** One run in full: raw samples, smoothed curve, envelope of its vignette, projection, scores. */
+export interface RunDetail {
+  readonly run: RunView;
+  readonly channels: ReadonlyArray<{ name: string; unit: string }>;
+  readonly raw: { readonly t: number[]; readonly values: number[][] };
+  readonly grid?: number[];
+  readonly smoothed?: number[][];
+  /** Grid points inside the judged window. */
+  readonly judged?: boolean[];
+  readonly envelope?: ReadonlyArray<{
+    readonly mean: number[];
+    readonly bands: ReadonlyArray<{ level: number; lower: number[]; upper: number[] }>;
+    readonly simultaneous: { level: number; lower: number[]; upper: number[] };
+  }>;
+  readonly projection?: { readonly from: number; readonly mean: number[][]; readonly lower: number[][]; readonly upper: number[][]; readonly level: number };
+  readonly scores?: { readonly sims: [number[], number[]]; readonly trail: Array<[number, number, number]>; readonly eigenvalues: [number, number] };
+  readonly reference?: { readonly l2: number[]; readonly score: number[]; readonly residual: number[] };
+  readonly log: readonly LogEntryView[];
+}
+
+export type WatchMessage =
+  | { readonly type: 'snapshot'; readonly state: EventView }
+  | { readonly type: 'run'; readonly run: RunView }
+  | { readonly type: 'vignette'; readonly vignette: VignetteView }
+  | { readonly type: 'combined'; readonly combined: EventView['combined'] }
+  | { readonly type: 'log'; readonly entry: LogEntryView };
+
+/** Envelope arrays for JSON (NaN-free). */
+export function envelopeView(env: readonly ChannelEnvelope[]): NonNullable<RunDetail['envelope']> {
+  return env.map((c) => ({
+    mean: Array.from(c.mean),
+    bands: c.pointwise.map((b) => ({ level: b.level, lower: Array.from(b.lower), upper: Array.from(b.upper) })),
+    simultaneous: { level: c.simultaneous.level, lower: Array.from(c.simultaneous.lower), upper: Array.from(c.simultaneous.upper) },
+  }));
+}

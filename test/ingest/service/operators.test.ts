@@ -1,0 +1,79 @@
+import { Subject } from 'rxjs';
+import { TestScheduler } from 'rxjs/testing';
+import { describe, expect, it } from 'vitest';
+import { batchPerTurn, conflate, conflatePerKey } from '../../../ingest/service/operators.js';
+
+const scheduler = () => new TestScheduler((actual, expected) => expect(actual).toEqual(expected));
+
+describe('batchPerTurn', () => {
+  it('groups values of one turn; flushes on completion; errors pass through', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      // The test scheduler runs "same turn" work at the same virtual frame.
+      const s = cold('(ab)-c-|');
+      expectObservable(s.pipe(batchPerTurn())).toBe('(x)--y-|', { x: ['a', 'b'], y: ['c'] });
+      const e = cold('a-#');
+      expectObservable(e.pipe(batchPerTurn())).toBe('x-#', { x: ['a'] });
+    });
+  });
+
+  it('releases its buffer on early unsubscribe', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('a-b-c-|').pipe(batchPerTurn()), '^--!').toBe('x-y-', { x: ['a'], y: ['b'] });
+    });
+  });
+});
+
+describe('conflate', () => {
+  it('passes the first value, then the latest per period', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('abc---------d-|').pipe(conflate(5))).toBe('a----c------d-|');
+    });
+  });
+
+  it('emits the pending value before completing (nothing final is lost)', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('ab|').pipe(conflate(5))).toBe('a-(b|)');
+    });
+  });
+
+  it('passes errors and stops on unsubscribe', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('ab#').pipe(conflate(5))).toBe('a-#');
+      expectObservable(cold('a-b-c-d-e').pipe(conflate(3)), '^----!').toBe('a--b-');
+    });
+  });
+});
+
+describe('conflatePerKey', () => {
+  it('conflates each key separately at the set rate, whatever the input rate', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      const values = { a: 'r1', b: 'r2', c: 'r1', d: 'r1', e: 'r2' };
+      // r1 at frames 0, 2, 3 and r2 at 1, 4: each key at most once per 10 frames, latest value kept.
+      expectObservable(cold('abcde', values).pipe(conflatePerKey((v) => v, 10, { idleMs: 100 }))).toBe('ab--------cd', { a: 'r1', b: 'r2', c: 'r1', d: 'r2' });
+    });
+  });
+
+  it('releases a key after the idle time and starts afresh when it comes back', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      const src = cold('a 30ms a', { a: 'k' });
+      expectObservable(src.pipe(conflatePerKey((v) => v, 5, { idleMs: 10 }))).toBe('a 30ms a', { a: 'k' });
+    });
+  });
+
+  it('keeps no group alive after isLast: a subject with many keys leaves nothing behind', () => {
+    const tick = new TestScheduler((a, b) => expect(a).toEqual(b));
+    tick.run(({ flush }) => {
+      const src = new Subject<{ key: string; last: boolean }>();
+      const out: string[] = [];
+      src.pipe(conflatePerKey((v) => v.key, 5, { isLast: (v) => v.last, idleMs: 1e9 })).subscribe((v) => out.push(`${v.key}${v.last ? '!' : ''}`));
+      for (let i = 0; i < 100; i++) {
+        src.next({ key: `k${i}`, last: false });
+        src.next({ key: `k${i}`, last: true });
+      }
+      flush();
+      // every key delivered its first and its last value
+      expect(out.filter((s) => s.endsWith('!'))).toHaveLength(100);
+      expect(out).toHaveLength(200);
+    });
+  });
+});
