@@ -24,9 +24,14 @@ export interface FitResult {
   readonly summary?: ModelSummary;
   readonly envelope?: ChannelEnvelope[];
   readonly grid?: Float64Array;
+  /** A few simulated curves (physical units, channel blocks) for texture on charts. */
+  readonly texture?: Float64Array[];
   readonly error?: string;
   readonly ms: number;
 }
+
+/** How many simulated curves a dashboard draws faintly behind the bands. */
+export const TEXTURE_CURVES = 8;
 
 export interface AssessResult {
   readonly vignette: string;
@@ -92,6 +97,7 @@ export class Compute {
         summary: summariseBaseline(baseline),
         envelope: baselineEnvelope(baseline),
         grid: baseline.grid.points,
+        texture: baseline.curves.slice(0, TEXTURE_CURVES).map((c) => Float64Array.from(c)),
         ms: performance.now() - start,
       };
     } catch (e) {

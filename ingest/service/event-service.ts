@@ -20,10 +20,10 @@ import { assembleReport, CAUTIONS, runReport, type AssessmentReport, type RunRep
 import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
 import type { AssessResult } from './compute.js';
-import type { Journal, JournalLogEntry } from './journal.js';
+import type { Journal, JournalLogEntry, JournalPoint } from './journal.js';
 import type { ServiceLimits } from './limits.js';
 import { errorReply, type ClientMessage, type CloseMessage, type ErrorCode, type NoteMessage, type OpenMessage, type PointsMessage, type ServerReply } from './protocol.js';
-import { envelopeView, type CombinedView, type EventView, type Judgement, type LogEntryView, type RunDetail, type RunView, type VignetteView } from './view.js';
+import { envelopeView, type CombinedView, type EventView, type Judgement, type LogEntryView, type RunDetail, type RunView, type TimelinePoint, type VignetteView } from './view.js';
 
 export type Role = 'producer' | 'watcher';
 
@@ -83,6 +83,7 @@ interface VignetteState {
   summary?: ModelSummary;
   envelope?: ChannelEnvelope[];
   grid?: number[];
+  texture?: number[][][];
   reason?: string;
   fitTimer?: NodeJS.Timeout;
 }
@@ -133,6 +134,9 @@ export class EventService {
   private readonly tracks = new Map<string, TrackState>();
   private readonly vignettes = new Map<string, VignetteState>();
   private readonly log: LogEntryView[] = [];
+  private readonly timeline: TimelinePoint[] = [];
+  /** Judged live runs in the order their final judgement arrived (journal order on restore). */
+  private readonly completionOrder: TrackState[] = [];
   private staged: StagedAck[] = [];
   private closes: StagedClose[] = [];
   private readonly inflight = new Set<Promise<unknown>>();
@@ -200,6 +204,8 @@ export class EventService {
         t.notJudged = stored.notJudged;
       }
     }
+    const judged = [...this.tracks.values()].filter((t) => t.source === 'live' && t.report?.overall && t.closedAt !== undefined).sort((a, b) => (a.closedAt as number) - (b.closedAt as number) || a.id - b.id);
+    for (const t of judged) this.addTimelinePoint(t, t.closedAt as number);
     for (const e of this.journal.log()) this.pushLog(this.logView(e), false);
     for (const t of this.tracks.values()) if (t.source === 'live') t.notes = this.log.filter((e) => e.kind === 'note' && e.vignette === t.vignette && e.track === t.track).length;
     // Closed simulated tracks go to the worker; then every vignette with sims is fitted.
@@ -298,10 +304,11 @@ export class EventService {
         reject(p.seq, 'WRONG_VALUE_COUNT', `point ${p.seq} has ${p.values.length} values; the track has ${C} channels`);
         continue;
       }
-      p.values.forEach((x, i) => {
+      for (let i = 0; i < C; i++) {
+        const x = p.values[i];
         if (!Number.isFinite(x)) bad = `value ${i} of point ${p.seq} is not finite`;
         values[t.order[i]] = x;
-      });
+      }
       if (bad) {
         reject(p.seq, 'NOT_FINITE', bad);
         continue;
@@ -357,7 +364,8 @@ export class EventService {
     this.staged = [];
     this.closes = [];
     if (batch.length > 0) {
-      const all = batch.flatMap((b) => b.staged.map((p) => ({ trackId: b.track.id, seq: p.seq, t: p.t, values: p.values })));
+      const all: JournalPoint[] = [];
+      for (const b of batch) for (const p of b.staged) all.push({ trackId: b.track.id, seq: p.seq, t: p.t, values: p.values });
       try {
         this.journal.commitPoints(all);
       } catch (e) {
@@ -454,6 +462,8 @@ export class EventService {
       v.summary = r.summary;
       v.envelope = r.envelope;
       v.grid = r.grid ? Array.from(r.grid) : undefined;
+      const M = v.grid?.length ?? 0;
+      v.texture = r.texture?.map((c) => this.plan.channels.map((_, ci) => Array.from(c.subarray(ci * M, (ci + 1) * M))));
     }
     this.changes$.next({ kind: 'vignette', id: vignette });
     // Runs that waited for this baseline are judged now.
@@ -494,6 +504,7 @@ export class EventService {
         this.applyResult(t, r);
         const stored: StoredResult = { judgement: t.judgement as Judgement, report: t.report as RunReport, detail: t.detail, trail: t.trail, notJudged: t.notJudged };
         if (t.report) this.journal.saveResult(t.id, stored);
+        this.addTimelinePoint(t, this.clock());
         this.changes$.next({ kind: 'combined' });
         this.changes$.next({ kind: 'vignette', id: t.vignette });
       }),
@@ -546,6 +557,13 @@ export class EventService {
   }
 
   // ---------------------------------------------------------------- views
+
+  private addTimelinePoint(t: TrackState, at: number): void {
+    if (!t.report?.overall) return;
+    this.completionOrder.push(t);
+    const combined = this.combine(this.finalReports().filter((r) => this.completionOrder.some((x) => x.report === r)));
+    if (combined) this.timeline.push({ at, run: t.key, runs: combined.count, pValue: combined.pValue });
+  }
 
   /** Final per-run p-values in the batch order (plan vignette order, then track id). */
   private finalReports(): RunReport[] {
@@ -619,6 +637,7 @@ export class EventService {
       vignettes: this.plan.vignettes.map((v) => this.vignetteView(v.id) as VignetteView),
       runs: [...this.tracks.values()].filter((t) => t.source === 'live').map((t) => this.runView(t.key) as RunView),
       combined: this.combinedEventView(),
+      timeline: [...this.timeline],
       log: this.log.slice(-this.limits.logEntries),
       cautions: [...CAUTIONS],
     };
@@ -637,6 +656,7 @@ export class EventService {
       grid: v?.grid,
       smoothed: t.detail?.smoothed,
       judged: t.detail?.judged,
+      texture: v?.texture,
       envelope: v?.envelope ? envelopeView(v.envelope) : undefined,
       projection: t.closedAt === undefined ? t.detail?.projection : undefined,
       scores: t.detail?.scores ? { ...t.detail.scores, trail: t.trail } : undefined,

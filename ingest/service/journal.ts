@@ -13,6 +13,8 @@ import { mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 
 export const JOURNAL_SCHEMA_VERSION = 1;
+/** Rows per multi-row INSERT (4 parameters each, well under SQLite's 32766-parameter limit). */
+const CHUNK = 64;
 const MIN_SQLITE = [3, 51, 3];
 
 export interface JournalTrack {
@@ -67,6 +69,7 @@ export class Journal {
   private readonly resultStmt: Database.Statement;
   private readonly logStmt: Database.Statement;
   private readonly metaStmt: Database.Statement;
+  private readonly insertChunk: Database.Statement;
   private readonly commitMany: (points: readonly JournalPoint[]) => void;
 
   private constructor(db: Database.Database) {
@@ -77,8 +80,26 @@ export class Journal {
     this.resultStmt = db.prepare('INSERT OR REPLACE INTO results(track_id, body) VALUES (?, ?)');
     this.logStmt = db.prepare('INSERT INTO log(at, kind, vignette, track, t, body) VALUES (?, ?, ?, ?, ?, ?)');
     this.metaStmt = db.prepare('INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)');
+    // Multi-row inserts: one statement call per CHUNK rows instead of one per row.
+    this.insertChunk = db.prepare(`INSERT OR IGNORE INTO points(track_id, seq, t, v) VALUES ${Array.from({ length: CHUNK }, () => '(?, ?, ?, ?)').join(', ')}`);
+    const params: unknown[] = new Array(4 * CHUNK);
+    const blob = (p: JournalPoint) => Buffer.from(p.values.buffer, p.values.byteOffset, p.values.byteLength);
     this.commitMany = db.transaction((points: readonly JournalPoint[]) => {
-      for (const p of points) this.insertPoint.run(p.trackId, p.seq, p.t, Buffer.from(p.values.buffer, p.values.byteOffset, p.values.byteLength));
+      let i = 0;
+      for (; i + CHUNK <= points.length; i += CHUNK) {
+        for (let k = 0; k < CHUNK; k++) {
+          const p = points[i + k];
+          params[4 * k] = p.trackId;
+          params[4 * k + 1] = p.seq;
+          params[4 * k + 2] = p.t;
+          params[4 * k + 3] = blob(p);
+        }
+        this.insertChunk.run(params);
+      }
+      for (; i < points.length; i++) {
+        const p = points[i];
+        this.insertPoint.run(p.trackId, p.seq, p.t, blob(p));
+      }
     });
   }
 

@@ -297,7 +297,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
         return vignette ? [`vignette:${c.id}`, { type: 'vignette', vignette }] : undefined;
       }
       case 'combined':
-        return ['combined', { type: 'combined', combined: svc.combinedEventView() }];
+        return ['combined', { type: 'combined', combined: svc.combinedEventView(), timeline: svc.snapshot().timeline }];
       case 'log':
         return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
     }

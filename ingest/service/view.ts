@@ -78,6 +78,15 @@ export interface LogEntryView {
   readonly author?: string;
 }
 
+/** The combined evidence after each completed run, in the order the runs completed. */
+export interface TimelinePoint {
+  readonly at: number;
+  readonly run: string;
+  readonly runs: number;
+  /** Fixed-sample combination of the final p-values so far (plan's method). */
+  readonly pValue: number;
+}
+
 export interface EventView {
   readonly plan: {
     readonly name: string;
@@ -88,6 +97,7 @@ export interface EventView {
   readonly vignettes: readonly VignetteView[];
   readonly runs: readonly RunView[];
   readonly combined?: CombinedView & { readonly alpha: number; readonly distinguishable: boolean };
+  readonly timeline: readonly TimelinePoint[];
   readonly log: readonly LogEntryView[];
   readonly cautions: readonly string[];
 }
@@ -101,6 +111,8 @@ export interface RunDetail {
   readonly smoothed?: number[][];
   /** Grid points inside the judged window. */
   readonly judged?: boolean[];
+  /** A few simulated runs of the vignette (per channel, on the grid), drawn faintly for texture. */
+  readonly texture?: number[][][];
   readonly envelope?: ReadonlyArray<{
     readonly mean: number[];
     readonly bands: ReadonlyArray<{ level: number; lower: number[]; upper: number[] }>;
@@ -116,7 +128,7 @@ export type WatchMessage =
   | { readonly type: 'snapshot'; readonly state: EventView }
   | { readonly type: 'run'; readonly run: RunView }
   | { readonly type: 'vignette'; readonly vignette: VignetteView }
-  | { readonly type: 'combined'; readonly combined: EventView['combined'] }
+  | { readonly type: 'combined'; readonly combined: EventView['combined']; readonly timeline: EventView['timeline'] }
   | { readonly type: 'log'; readonly entry: LogEntryView };
 
 /** Envelope arrays for JSON (NaN-free). */

@@ -1,0 +1,139 @@
+/**
+ * Service benchmark: `npm run bench:service`. Prints figures; asserts nothing about time.
+ *
+ * The server runs as its own process (`plumbline serve`, built), on loopback, with a fresh journal.
+ *   1. Throughput: one producer sends 200,000 points of 20 tracks in messages of 500 points, with up
+ *      to 64 unacknowledged messages; points per second journaled and acknowledged.
+ *   2. Latency: 50 producers at 50 Hz (one point per message) for 20 s, one dashboard on /watch;
+ *      for every run update the dashboard receives, the time since the newest point it reflects was
+ *      sent. Prints the 50th, 95th and 99th percentiles.
+ */
+import { spawn } from 'node:child_process';
+import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import WebSocket from 'ws';
+
+const dir = mkdtempSync(join(tmpdir(), 'plumbline-sbench-'));
+const vignettes = Array.from({ length: 50 }, (_, i) => ({ id: `V${i + 1}`, horizon: 100000 }));
+writeFileSync(join(dir, 'plan.json'), JSON.stringify({ name: 'service benchmark', channels: [{ name: 'x', unit: 'm' }, { name: 'y', unit: 'm' }], vignettes }));
+
+async function startServer(port: number): Promise<() => void> {
+  const child = spawn(process.execPath, ['dist/ingest/cli/main.js', 'serve', '--plan', join(dir, 'plan.json'), '--journal', join(dir, 'journal.sqlite'), '--port', String(port)], { stdio: ['ignore', 'ignore', 'pipe'] });
+  await new Promise<void>((res, rej) => {
+    let err = '';
+    child.stderr.on('data', (d: Buffer) => {
+      err += d.toString();
+      if (err.includes('is serving')) res();
+    });
+    child.once('exit', (code) => rej(new Error(`server exited ${code}: ${err}`)));
+  });
+  return () => child.kill('SIGTERM');
+}
+
+function connect(url: string): Promise<WebSocket> {
+  return new Promise((res, rej) => {
+    const ws = new WebSocket(url);
+    ws.once('open', () => res(ws));
+    ws.once('error', rej);
+  });
+}
+
+function percentile(sorted: number[], q: number): number {
+  return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))];
+}
+
+async function throughput(url: string): Promise<void> {
+  const ws = await connect(url);
+  const TRACKS = 20;
+  const PER = 10_000;
+  const BATCH = 500;
+  let inflight = 0;
+  let acked = 0;
+  let wake: (() => void) | undefined;
+  ws.on('message', (d) => {
+    const r = JSON.parse(d.toString()) as { type: string; accepted?: number };
+    if (r.type === 'ack') {
+      acked += r.accepted ?? 0;
+      inflight--;
+    }
+    if (r.type === 'error') console.log('error', r);
+    wake?.();
+  });
+  for (let k = 0; k < TRACKS; k++) ws.send(JSON.stringify({ v: 1, type: 'open', id: `o${k}`, vignette: `V${k + 1}`, track: 'bulk', source: 'live', channels: ['x', 'y'] }));
+  const start = performance.now();
+  let id = 0;
+  for (let k = 0; k < TRACKS; k++) {
+    for (let s = 0; s < PER; s += BATCH) {
+      while (inflight >= 64) await new Promise<void>((r) => (wake = r));
+      const points = Array.from({ length: BATCH }, (_, i) => ({ seq: s + i + 1, t: (s + i) * 0.02, values: [1000 + s + i, 2000 - i] }));
+      ws.send(JSON.stringify({ v: 1, type: 'points', id: `p${id++}`, vignette: `V${k + 1}`, track: 'bulk', points }));
+      inflight++;
+    }
+  }
+  while (acked < TRACKS * PER) await new Promise<void>((r) => (wake = r));
+  const seconds = (performance.now() - start) / 1000;
+  console.log(`throughput: ${acked} points journaled and acknowledged in ${seconds.toFixed(2)} s = ${Math.round(acked / seconds).toLocaleString('en')} points/s`);
+  ws.close();
+}
+
+async function latency(base: string): Promise<void> {
+  const PRODUCERS = 50;
+  const HZ = 50;
+  const SECONDS = 20;
+  const sentAt = new Map<string, number[]>();
+  const watcher = await connect(`${base}/watch`);
+  const samples: number[] = [];
+  watcher.on('message', (d) => {
+    const m = JSON.parse(d.toString()) as { type: string; run?: { key: string; points: number } };
+    if (m.type !== 'run' || !m.run) return;
+    const times = sentAt.get(m.run.key);
+    const sent = times?.[m.run.points - 1];
+    if (sent !== undefined) samples.push(performance.now() - sent);
+  });
+  const producers = await Promise.all(Array.from({ length: PRODUCERS }, () => connect(`${base}/feed`)));
+  producers.forEach((ws, k) => {
+    ws.on('message', () => undefined);
+    ws.send(JSON.stringify({ v: 1, type: 'open', id: 'o', vignette: `V${k + 1}`, track: 'rate', source: 'live', channels: ['x', 'y'] }));
+    sentAt.set(`V${k + 1}/rate`, []);
+  });
+  await new Promise((r) => setTimeout(r, 300));
+  const start = performance.now();
+  await new Promise<void>((resolve) => {
+    let tick = 0;
+    const timer = setInterval(() => {
+      const due = Math.floor(((performance.now() - start) / 1000) * HZ);
+      for (; tick < due; tick++) {
+        producers.forEach((ws, k) => {
+          const times = sentAt.get(`V${k + 1}/rate`) as number[];
+          times.push(performance.now());
+          ws.send(JSON.stringify({ v: 1, type: 'points', id: `p${tick}`, vignette: `V${k + 1}`, track: 'rate', points: [{ seq: tick + 1, t: tick / HZ, values: [tick, -tick] }] }));
+        });
+      }
+      if (performance.now() - start > SECONDS * 1000) {
+        clearInterval(timer);
+        resolve();
+      }
+    }, 5);
+  });
+  await new Promise((r) => setTimeout(r, 1000));
+  samples.sort((a, b) => a - b);
+  console.log(`latency, ${PRODUCERS} producers at ${HZ} Hz for ${SECONDS} s, point sent → dashboard update: ${samples.length} updates; p50 ${percentile(samples, 0.5).toFixed(1)} ms, p95 ${percentile(samples, 0.95).toFixed(1)} ms, p99 ${percentile(samples, 0.99).toFixed(1)} ms`);
+  for (const ws of producers) ws.close();
+  watcher.close();
+}
+
+async function main(): Promise<void> {
+  const port = 17000 + Math.floor(Math.random() * 1000);
+  const stop = await startServer(port);
+  try {
+    await throughput(`ws://127.0.0.1:${port}/feed`);
+    await latency(`ws://127.0.0.1:${port}`);
+  } finally {
+    stop();
+    await new Promise((r) => setTimeout(r, 500));
+    rmSync(dir, { recursive: true, force: true });
+  }
+}
+
+await main();
