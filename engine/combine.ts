@@ -101,3 +101,22 @@ export function combinePValues(pvalues: ArrayLike<number>, method: CombinationMe
     }
   }
 }
+
+/**
+ * Holm's step-down adjustment of p-values for a family of tests (Holm, "A simple sequentially
+ * rejective multiple test procedure", Scand. J. Statist. 6(2):65–70, 1979): sort ascending,
+ * p̃_(i) = max_{j≤i} min(1, (m − j + 1) p_(j)). Rejecting every p̃ ≤ α controls the family-wise
+ * error rate at α under any dependence. Used for per-vignette verdicts across the vignettes of an
+ * event, so that one of nine agreeing conditions is not flagged by chance one time in four.
+ */
+export function holmAdjust(pvalues: ArrayLike<number>): Float64Array {
+  const m = pvalues.length;
+  const order = Array.from({ length: m }, (_, i) => i).sort((a, b) => pvalues[a] - pvalues[b]);
+  const out = new Float64Array(m);
+  let running = 0;
+  order.forEach((idx, rank) => {
+    running = Math.max(running, Math.min(1, (m - rank) * pvalues[idx]));
+    out[idx] = running;
+  });
+  return out;
+}

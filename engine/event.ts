@@ -3,11 +3,14 @@
  * per-run overall p-values combined across runs. Used alike by the batch command and the live
  * service, so both give the same numbers.
  */
-import { assessRun, buildBaseline, NotAssessableError, type Baseline, type RunAssessment } from './assess.js';
+import { assessRun, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from './assess.js';
+import { diagnoseRun, type Diagnosis } from './diagnosis.js';
+import { observedWindow } from './grid.js';
+import { practicalDifference, type ChannelDifference } from './practical.js';
 import { channelScales, joinedWeights } from './calibrate.js';
 import { combinePValues, type Combined } from './combine.js';
 import { fitFpca } from './fpca.js';
-import { fullWindow, windowWeights } from './grid.js';
+import { fullWindow, windowWeights, type TrackWindow } from './grid.js';
 import type { AnalysisSettings, ChannelSpec, RawTrack } from './types.js';
 
 export interface VignetteSpec {
@@ -73,6 +76,10 @@ export interface RunOutcome {
   readonly assessment?: RunAssessment;
   /** Physical-unit RMS deviation from the simulated mean, per channel. */
   readonly rms?: number[];
+  /** Where and by how much the run leaves the simulated 95 % band, per channel (physical units). */
+  readonly practical?: ChannelDifference[];
+  /** The dominant kind of discrepancy of a run that stands out (overall p ≤ alpha). */
+  readonly diagnosis?: Diagnosis;
   /** Why the run could not be judged. */
   readonly error?: string;
 }
@@ -94,6 +101,26 @@ export interface EventAssessment {
 }
 
 export type EventProgress = (stage: 'baseline' | 'runs', vignette: string, done: number, total: number) => void;
+
+/** A run's window and the simulated curves cut to it (cached curves for the full window). */
+export function windowAndCurves(baseline: Baseline, run: RawTrack): { window: TrackWindow; curves: Float64Array[] } {
+  const window = observedWindow(run.t, baseline.horizon, baseline.settings.gapFactor, baseline.grid.step);
+  return { window, curves: curvesForWindow(baseline, window).curves };
+}
+
+/**
+ * Judge one run and describe it: the assessment, the practical difference in physical units, and,
+ * for a run that stands out at the plan's alpha, the kind of discrepancy. The batch command and the
+ * live service both call this, so they report the same numbers.
+ */
+export function judgeRun(baseline: Baseline, run: RawTrack, simMean: Float64Array, prepared?: { window: TrackWindow; curves: readonly Float64Array[] }): RunOutcome {
+  const { window, curves } = prepared ?? windowAndCurves(baseline, run);
+  const a = assessRun(baseline, run, { window, windowCurves: curves });
+  const practical = practicalDifference(a.curve, a.active, curves, baseline.grid, baseline.channels);
+  const standsOut = a.result.pValues.overall <= baseline.settings.alpha;
+  const diagnosis = standsOut ? diagnoseRun(baseline, run, a, { alpha: baseline.settings.alpha, windowCurves: curves }) : undefined;
+  return { vignette: run.vignette, track: run.track, samples: run.t.length, assessment: a, rms: rmsDeviation(a, baseline, simMean), practical, diagnosis };
+}
 
 /**
  * Judge every live run. Runs of a vignette without usable simulated tracks, or that cannot be
@@ -133,9 +160,9 @@ export function assessEvent(
         return;
       }
       try {
-        const a = assessRun(baseline, run);
-        runs.push({ vignette: v.id, track: run.track, samples: run.t.length, assessment: a, rms: rmsDeviation(a, baseline, simMean) });
-        pvals.push(a.result.pValues.overall);
+        const outcome = judgeRun(baseline, run, simMean);
+        runs.push(outcome);
+        pvals.push(outcome.assessment?.result.pValues.overall ?? 1);
       } catch (e) {
         if (!(e instanceof NotAssessableError)) throw e;
         runs.push({ vignette: v.id, track: run.track, samples: run.t.length, error: e.message });

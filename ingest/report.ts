@@ -4,7 +4,9 @@
  * `buildReport` turns the engine's results into it, so both paths write the same numbers.
  */
 import { z } from 'zod';
-import type { Combined } from '../engine/combine.js';
+import { holmAdjust, type Combined } from '../engine/combine.js';
+import type { Diagnosis } from '../engine/diagnosis.js';
+import type { ChannelDifference } from '../engine/practical.js';
 import type { EventAssessment, ModelSummary, RunOutcome } from '../engine/event.js';
 import type { EventPlan } from './plan.js';
 import type { ReadReport } from './tracks-reader.js';
@@ -61,6 +63,33 @@ export const runReportSchema = z.object({
     .array(z.object({ channel: z.string(), lambda: z.number(), edf: z.number(), sigma: z.number() }))
     .optional()
     .describe('P-spline fit per channel: GCV smoothing parameter, effective degrees of freedom, residual sd'),
+  practical: z
+    .array(
+      z.object({
+        channel: z.string(),
+        unit: z.string(),
+        leavesBand: z.boolean().describe('the run is outside the simulated pointwise 95 % band somewhere in its window'),
+        maxExcess: z.number().describe('largest distance outside the band, channel units'),
+        maxExcessAt: z.number().optional().describe('track time of the largest excess, s'),
+        timeOutside: z.number().describe('time spent outside the band, s'),
+        integratedExcess: z.number().describe('integral of the excess over time, units·s'),
+        maxDeviation: z.number().describe('largest signed deviation from the simulated mean, channel units'),
+        maxDeviationAt: z.number().describe('its track time, s'),
+        tolerance: z.number().optional().describe("the plan's tolerance for the channel"),
+        withinTolerance: z.boolean().optional().describe('inside the band widened by the tolerance (practical equivalence); absent without a tolerance'),
+      }),
+    )
+    .optional()
+    .describe('practical difference in physical units: a separate answer from statistical distinguishability'),
+  diagnosis: z
+    .object({
+      kind: z.enum(['level', 'shape', 'fine', 'timing', 'spread', 'none']),
+      reason: z.string(),
+      timeShift: z.number().optional().describe('for timing: best time shift in seconds (> 0: the live run is late)'),
+      levelShift: z.array(z.number()).optional().describe('for level: per-channel offset, channel units'),
+    })
+    .optional()
+    .describe('dominant kind of discrepancy, for runs whose overall p-value is at most alpha'),
 });
 
 export const assessmentReportSchema = z.object({
@@ -95,12 +124,30 @@ export const assessmentReportSchema = z.object({
         .optional(),
       runs: z.number().int(),
       combined: combined.optional(),
+      adjustedPValue: z.number().optional().describe("the vignette's combined p-value after Holm's adjustment over the event's vignettes"),
+      verdict: z.enum(['distinguishable', 'not distinguishable', 'not judged']).describe('adjusted p-value <= alpha: the live runs of this condition are distinguishable from its simulation'),
     }),
   ),
   runs: z.array(runReportSchema),
   combined: combined
     .extend({ alpha: z.number(), distinguishable: z.boolean().describe('combined p-value <= alpha') })
     .optional(),
+  sequential: z
+    .object({
+      threshold: z.number().describe('1/alpha'),
+      evidence: z.number().describe("the event's test martingale after the last run (the average of the vignettes' martingales)"),
+      established: z.boolean(),
+      crossedAt: z.number().nullable().describe('the run (in completion order, 1-based) at which the evidence reached 1/alpha'),
+      vignettes: z.array(z.object({ id: z.string(), evidence: z.number(), established: z.boolean(), runs: z.number().int(), advice: z.string() })),
+      advice: z.string(),
+      note: z.string(),
+    })
+    .optional()
+    .describe('anytime-valid evidence: valid however the team decided when to stop or add runs (the fixed-sample combination above is not)'),
+  log: z
+    .array(z.object({ at: z.number(), kind: z.enum(['note', 'flag', 'event']), vignette: z.string().optional(), track: z.string().optional(), t: z.number().optional(), text: z.string(), author: z.string().optional() }))
+    .optional()
+    .describe('analyst notes, data-quality flags and run events, oldest first (live service)'),
   cautions: z.array(z.string()),
 });
 
@@ -117,6 +164,35 @@ function readSummaryOf(r: ReadReport): z.infer<typeof readSummary> {
     beyondHorizon: r.beyondHorizon,
     tracks: r.tracks,
     errors: r.errors.map((e) => e.message),
+  };
+}
+
+export type PracticalRow = NonNullable<RunReport['practical']>[number];
+export type DiagnosisRow = NonNullable<RunReport['diagnosis']>;
+
+/** The practical difference without its band arrays (for documents and dashboards). */
+export function practicalRows(diffs: readonly ChannelDifference[]): PracticalRow[] {
+  return diffs.map((d) => ({
+    channel: d.name,
+    unit: d.unit,
+    leavesBand: d.excursion.leaves,
+    maxExcess: d.excursion.maxExcess,
+    maxExcessAt: d.excursion.maxExcessAt,
+    timeOutside: d.excursion.timeOutside,
+    integratedExcess: d.excursion.integratedExcess,
+    maxDeviation: d.deviation.value,
+    maxDeviationAt: d.deviation.at,
+    tolerance: d.tolerance,
+    withinTolerance: d.withinTolerance,
+  }));
+}
+
+export function diagnosisRow(d: Diagnosis): DiagnosisRow {
+  return {
+    kind: d.kind,
+    reason: d.reason,
+    timeShift: d.kind === 'timing' ? d.evidence.timing.shift : undefined,
+    levelShift: d.kind === 'level' ? [...d.evidence.level.shift] : undefined,
   };
 }
 
@@ -146,6 +222,8 @@ export function runReport(plan: EventPlan, run: RunOutcome): RunReport {
     varianceExplained: r.model.varianceExplained,
     rmsDeviation: Object.fromEntries(plan.channels.map((c, i) => [c.name, run.rms?.[i] ?? Number.NaN])),
     smoothing: a.smoothing.map((f, i) => ({ channel: plan.channels[i].name, lambda: f.lambda, edf: f.edf, sigma: f.sigma })),
+    practical: run.practical ? practicalRows(run.practical) : undefined,
+    diagnosis: run.diagnosis ? diagnosisRow(run.diagnosis) : undefined,
   };
 }
 
@@ -164,9 +242,12 @@ export function assembleReport(
   runs: readonly RunReport[],
   combinedAll: Combined | undefined,
   inputs: { baseline?: ReadReport; live?: ReadReport },
+  extras: { sequential?: AssessmentReport['sequential']; log?: AssessmentReport['log'] } = {},
 ): AssessmentReport {
   const s = plan.analysis;
   const comps = s.components.kind === 'variance' ? { varianceFraction: s.components.fraction } : { fixed: s.components.count };
+  const judged = vignettes.filter((v) => v.combined);
+  const adjusted = new Map(judged.map((v, i) => [v.id, holmAdjust(judged.map((x) => x.combined?.pValue ?? 1))[i]]));
   return {
     format: REPORT_FORMAT,
     version: REPORT_VERSION,
@@ -199,10 +280,14 @@ export function assembleReport(
           : undefined,
         runs: runs.filter((r) => r.vignette === v.id).length,
         combined: v.combined,
+        adjustedPValue: adjusted.get(v.id),
+        verdict: adjusted.has(v.id) ? ((adjusted.get(v.id) as number) <= s.alpha ? 'distinguishable' : 'not distinguishable') : 'not judged',
       };
     }),
     runs: [...runs],
     combined: combinedAll ? { ...combinedAll, alpha: s.alpha, distinguishable: combinedAll.pValue <= s.alpha } : undefined,
+    sequential: extras.sequential,
+    log: extras.log,
     cautions: [...CAUTIONS],
   };
 }

@@ -61,8 +61,10 @@ export function formatReport(plan: EventPlan, report: AssessmentReport): string 
     String(v.model?.components ?? '—'),
     v.model ? `${(100 * v.model.varianceExplained).toFixed(1)} %` : '—',
     formatP(v.combined?.pValue),
+    formatP(v.adjustedPValue),
+    v.verdict,
   ]);
-  out.push(table(['vignette', 'baseline', 'sims', 'components', 'variance', `p(${report.plan.combination})`], models));
+  out.push(table(['vignette', 'baseline', 'sims', 'components', 'variance', `p(${report.plan.combination})`, 'p(Holm)', 'verdict'], models));
   out.push('');
   const inputs = [report.inputs.baseline, report.inputs.live].filter((x) => x !== undefined);
   for (const i of inputs) {

@@ -3,7 +3,7 @@
  * The `plumbline` command. Subcommands:
  *   assess      judge recorded live runs against simulated ones, from files
  *   demo-files  write the invented demo event (plan, simulated and live runs) to a folder
- *   demo        the built-in demo: write the demo event and judge it
+ *   demo        the built-in demo: the invented event streamed through the live service
  *   schema      print the JSON Schema of the plan, the assessment document or the feed protocol
  *   serve       the live service: WebSocket feed, journal, running assessment, dashboard
  *   replay      send recorded tracks to a running service as a producer would
@@ -18,6 +18,7 @@ import { planJsonSchema } from '../plan.js';
 import { assessmentReportSchema } from '../report.js';
 import { assessFiles, formatReport, writeReport } from './assess.js';
 import { writeDemoFiles } from './demo-files.js';
+import { DemoError, runDemo } from './demo.js';
 import { readFileSync } from 'node:fs';
 import { JournalError } from '../service/journal.js';
 import { protocolJsonSchema } from '../service/protocol.js';
@@ -40,8 +41,10 @@ const USAGE = `usage: plumbline <command> [options]
 commands:
   assess --plan FILE --baseline FILE --live FILE [--out FILE] [--skip-bad-rows] [--quiet]
       judge recorded live runs against the simulated runs of each vignette
-  demo [--dir DIR] [--seed N] [--sims N]
-      write the invented harbour-approach demo event and judge it
+  demo [--speed X] [--seed N] [--port N] [--sims N] [--runs N] [--overlap N] [--dir DIR] [--exit]
+      the built-in demo: generate the invented harbour-approach event, start the service and
+      replay its live runs over the feed (default: 2 runs per vignette, 20× speed, 3 at a
+      time); --exit stops when all runs are judged
   demo-files [--dir DIR] [--seed N] [--sims N] [--live-runs N]
       only write the demo event's files (plan.json, baseline.csv, live.csv, truth.json)
   schema plan|assessment|protocol
@@ -99,8 +102,7 @@ async function run(argv: string[]): Promise<number> {
       if (typeof values.out === 'string') process.stderr.write(`wrote ${values.out}\n`);
       return EXIT_OK;
     }
-    case 'demo-files':
-    case 'demo': {
+    case 'demo-files': {
       const { values } = parse(rest, {
         dir: { type: 'string' },
         seed: { type: 'string' },
@@ -114,14 +116,10 @@ async function run(argv: string[]): Promise<number> {
         liveRunsPerVignette: integer(values['live-runs'], 'live-runs', 1),
       });
       process.stderr.write(`wrote the demo event to ${files.dir}: plan.json, baseline.csv, live.csv, truth.json\n`);
-      if (command === 'demo-files') return EXIT_OK;
-      const { plan, report } = await assessFiles({ planPath: files.plan, baselinePath: files.baseline, livePath: files.live });
-      const out = join(dir, 'assessment.json');
-      await writeReport(out, report);
-      process.stdout.write(`${formatReport(plan, report)}\n`);
-      process.stderr.write(`wrote ${out}\n`);
       return EXIT_OK;
     }
+    case 'demo':
+      return demo(rest);
     case 'schema': {
       const which = rest[0];
       if (which === 'plan') process.stdout.write(`${JSON.stringify(planJsonSchema(), null, 2)}\n`);
@@ -209,6 +207,40 @@ export function dashboardDir(): string {
   return new URL('../../dashboard/', import.meta.url).pathname;
 }
 
+async function demo(args: string[]): Promise<number> {
+  const { values } = parse(args, {
+    dir: { type: 'string' },
+    seed: { type: 'string' },
+    sims: { type: 'string' },
+    runs: { type: 'string' },
+    speed: { type: 'string' },
+    overlap: { type: 'string' },
+    port: { type: 'string' },
+    exit: { type: 'boolean' },
+  });
+  const speed = values.speed === undefined ? 20 : Number(values.speed);
+  if (!(speed >= 0)) throw new UsageError(`--speed must be a number >= 0 (0: as fast as possible), got ${String(values.speed)}`);
+  const { server } = await runDemo({
+    dir: typeof values.dir === 'string' ? values.dir : join('.plumbline', 'demo'),
+    seed: integer(values.seed, 'seed', 20261201),
+    sims: integer(values.sims, 'sims', 200),
+    runs: Math.max(1, integer(values.runs, 'runs', 2)),
+    speed,
+    overlap: Math.max(1, integer(values.overlap, 'overlap', 3)),
+    port: port(values.port, DEFAULT_PORT),
+    staticDir: dashboardDir(),
+    exitWhenDone: values.exit === true,
+  });
+  if (values.exit !== true) {
+    await new Promise<void>((res) => {
+      process.once('SIGINT', () => res());
+      process.once('SIGTERM', () => res());
+    });
+  }
+  await server.close();
+  return EXIT_OK;
+}
+
 async function replayCommand(args: string[]): Promise<number> {
   const { values } = parse(args, {
     live: { type: 'string' },
@@ -258,7 +290,7 @@ export async function main(argv: string[]): Promise<number> {
       process.stderr.write(`plumbline: ${e.message}\n\n${USAGE}\n`);
       return EXIT_INPUT;
     }
-    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError) {
+    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError) {
       process.stderr.write(`plumbline: ${e.message}\n`);
       return EXIT_INPUT;
     }

@@ -13,17 +13,20 @@ import { createRequire } from 'node:module';
 import { pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import type { RawTrack } from '../../engine/types.js';
-import { Compute, type AssessResult, type ComputeConfig, type FitResult } from './compute.js';
+import type { StreamRun } from '../../engine/evidence.js';
+import { Compute, type AssessResult, type ComputeConfig, type EvidenceResult, type FitResult } from './compute.js';
 
 export type WorkerRequest =
   | { kind: 'sims'; id: number; vignette: string; tracks: RawTrack[] }
   | { kind: 'fit'; id: number; vignette: string }
-  | { kind: 'assess'; id: number; vignette: string; run: RawTrack; mode: 'final' | 'provisional' };
+  | { kind: 'assess'; id: number; vignette: string; run: RawTrack; mode: 'final' | 'provisional' }
+  | { kind: 'evidence'; id: number; runs: StreamRun[]; alpha: number };
 
 export type WorkerReply =
   | { kind: 'sims'; id: number; vignette: string; count: number }
   | { kind: 'fit'; id: number; result: FitResult }
   | { kind: 'assess'; id: number; result: AssessResult }
+  | { kind: 'evidence'; id: number; result: EvidenceResult }
   | { kind: 'failed'; id: number; message: string };
 
 interface Job {
@@ -92,6 +95,14 @@ export class Assessor {
     return p.then((r) => (r?.kind === 'assess' ? r.result : undefined));
   }
 
+  /** Evidence and advice from final p-values in completion order (ordered work). */
+  evidence(runs: StreamRun[], alpha: number): Promise<EvidenceResult> {
+    return this.enqueue({ kind: 'evidence', runs, alpha }).then((r) => {
+      if (r?.kind !== 'evidence') throw new Error('evidence: unexpected reply');
+      return r.result;
+    });
+  }
+
   /** Pending work, for the state view and tests. */
   get queued(): { ordered: number; provisional: number; busy: boolean } {
     return { ordered: this.ordered.length, provisional: this.provisional.size, busy: this.busy !== undefined };
@@ -154,6 +165,8 @@ export class Assessor {
         return { kind: 'fit', id: req.id, result: c.fit(req.vignette) };
       case 'assess':
         return { kind: 'assess', id: req.id, result: c.assess(req.vignette, req.run, req.mode) };
+      case 'evidence':
+        return { kind: 'evidence', id: req.id, result: c.evidence(req.runs, req.alpha) };
     }
   }
 

@@ -23,6 +23,9 @@ port.on('message', (req: WorkerRequest) => {
       case 'assess':
         reply = { kind: 'assess', id: req.id, result: compute.assess(req.vignette, req.run, req.mode) };
         break;
+      case 'evidence':
+        reply = { kind: 'evidence', id: req.id, result: compute.evidence(req.runs, req.alpha) };
+        break;
     }
   } catch (e) {
     reply = { kind: 'failed', id: req.id, message: e instanceof Error ? (e.stack ?? e.message) : String(e) };

@@ -4,7 +4,11 @@
  * (./compute-worker.ts) wraps it; tests can call it directly. All statistics come from engine/.
  */
 import { assessRun, baselineEnvelope, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from '../../engine/assess.js';
-import { meanCurve, rmsDeviation, summariseBaseline, type ModelSummary } from '../../engine/event.js';
+import { adviseEvent, type RunAdvice } from '../../engine/advisor.js';
+import type { Diagnosis } from '../../engine/diagnosis.js';
+import { DEFAULT_STRATEGY, eventEvidence, type StreamRun } from '../../engine/evidence.js';
+import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary } from '../../engine/event.js';
+import { practicalDifference, type ChannelDifference } from '../../engine/practical.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
 import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
 import { fitProjectionModel, projectRemainder, type Projection, type ProjectionModel } from '../../engine/projection.js';
@@ -42,11 +46,33 @@ export interface AssessResult {
   readonly samples: number;
   readonly assessment?: RunAssessment;
   readonly rms?: number[];
+  readonly practical?: ChannelDifference[];
+  readonly diagnosis?: Diagnosis;
   readonly projection?: Projection;
   /** Scores of the simulated runs and of this run on the first two components of the shared fit. */
   readonly scoreCloud?: { sims: [number[], number[]]; run: [number, number]; eigenvalues: [number, number] };
   readonly error?: string;
   readonly ms: number;
+}
+
+/** Sequential evidence and run-count advice, in plain arrays for the state view. */
+export interface EvidenceResult {
+  readonly threshold: number;
+  readonly event: { readonly current: number; readonly established: boolean; readonly crossedAt: number | null; readonly martingale: number[] };
+  readonly eventAdvice: AdviceView;
+  readonly streams: ReadonlyArray<{ readonly vignette: string; readonly current: number; readonly established: boolean; readonly crossedAt: number | null; readonly runs: number; readonly nextRunNeeds: number | null; readonly advice: AdviceView }>;
+}
+
+export interface AdviceView {
+  readonly additionalRuns: number | null;
+  readonly probability: number;
+  readonly futile: boolean;
+  readonly established: boolean;
+  readonly message: string;
+}
+
+function adviceView(a: RunAdvice): AdviceView {
+  return { additionalRuns: a.additionalRuns, probability: a.probability, futile: a.futile, established: a.established, message: a.message };
 }
 
 interface VignetteState {
@@ -124,6 +150,38 @@ export class Compute {
     return { window, upTo, cut };
   }
 
+  /**
+   * Anytime-valid evidence per vignette and for the event from the final p-values in the order the
+   * runs completed, and the run-count advice (engine/evidence.ts, engine/advisor.ts). The lattice of
+   * each vignette's p-values is its number of simulated runs + 1.
+   */
+  evidence(runs: readonly StreamRun[], alpha: number): EvidenceResult {
+    const streams = this.config.vignettes.map((v) => v.id);
+    const resolutions = Object.fromEntries(this.config.vignettes.map((v) => [v.id, Math.max(2, (this.vignettes.get(v.id)?.baseline?.curves.length ?? 200) + 1)]));
+    // The event's evidence is the average of the vignettes' test martingales over the plan's
+    // vignettes (fixed before the event): itself a test martingale, and not dragged down by the
+    // agreeing conditions when a discrepancy is confined to a few (engine/evidence.ts, 'average').
+    const ev = eventEvidence(runs, alpha, DEFAULT_STRATEGY, { streams, resolutions, combine: 'average' });
+    const advice = adviseEvent(runs, alpha, { streams, resolutions, combine: 'average', draws: 400 });
+    return {
+      threshold: ev.threshold,
+      event: { current: ev.current, established: ev.established, crossedAt: ev.crossedAt, martingale: Array.from(ev.martingale) },
+      eventAdvice: adviceView(advice.event),
+      streams: ev.streams.map((s) => {
+        const a = advice.streams.find((x) => x.stream === s.stream);
+        return {
+          vignette: s.stream,
+          current: s.evidence.current,
+          established: s.evidence.established,
+          crossedAt: s.evidence.crossedAt,
+          runs: s.evidence.martingale.length,
+          nextRunNeeds: s.evidence.nextRunNeeds,
+          advice: a ? adviceView(a.advice) : { additionalRuns: null, probability: 0, futile: false, established: false, message: 'no runs yet' },
+        };
+      }),
+    };
+  }
+
   assess(vignette: string, run: RawTrack, mode: 'final' | 'provisional'): AssessResult {
     const start = performance.now();
     const v = this.vignette(vignette);
@@ -136,8 +194,13 @@ export class Compute {
     try {
       let assessment: RunAssessment;
       let upTo = last;
+      let practical: ChannelDifference[] | undefined;
+      let diagnosis: Diagnosis | undefined;
       if (mode === 'final') {
-        assessment = assessRun(ready.baseline, run);
+        const outcome = judgeRun(ready.baseline, run, v.simMean);
+        assessment = outcome.assessment as RunAssessment;
+        practical = outcome.practical;
+        diagnosis = outcome.diagnosis;
       } else {
         const p = this.provisionalWindow(run, ready);
         if (!p) return { ...base, upTo: 0, error: 'not enough of the run yet', ms: performance.now() - start };
@@ -150,6 +213,7 @@ export class Compute {
           if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
         }
         assessment = assessRun(ready.baseline, p.cut, { window: p.window, windowCurves: curves });
+        practical = practicalDifference(assessment.curve, assessment.active, curves, ready.baseline.grid, this.config.channels);
       }
       const projection = projectRemainder(v.projection, assessment.curve, assessment.active);
       const m = assessment.result.model;
@@ -161,7 +225,7 @@ export class Compute {
         run: [k2 > 0 ? m.scores[N][0] : 0, k2 > 1 ? m.scores[N][1] : 0] as [number, number],
         eigenvalues: [m.eigenvalues[0] ?? 0, m.eigenvalues[1] ?? 0] as [number, number],
       };
-      return { ...base, upTo, assessment, rms: rmsDeviation(assessment, ready.baseline, v.simMean), projection, scoreCloud, ms: performance.now() - start };
+      return { ...base, upTo, assessment, rms: rmsDeviation(assessment, ready.baseline, v.simMean), practical, diagnosis, projection, scoreCloud, ms: performance.now() - start };
     } catch (e) {
       if (!(e instanceof NotAssessableError)) throw e;
       return { ...base, upTo: last, error: e.message, ms: performance.now() - start };

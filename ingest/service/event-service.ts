@@ -15,11 +15,12 @@ import type { ChannelEnvelope } from '../../engine/envelope.js';
 import type { ModelSummary } from '../../engine/event.js';
 import type { RawTrack } from '../../engine/types.js';
 import { unwrapCircular } from '../../engine/unwrap.js';
+import { closeTrack as closeQuality, initialQuality, observePoint, type QualityFlag, type QualityState } from '../../engine/quality.js';
 import type { EventPlan } from '../plan.js';
-import { assembleReport, CAUTIONS, runReport, type AssessmentReport, type RunReport } from '../report.js';
+import { assembleReport, CAUTIONS, diagnosisRow, practicalRows, runReport, type AssessmentReport, type RunReport } from '../report.js';
 import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
-import type { AssessResult } from './compute.js';
+import type { AssessResult, EvidenceResult } from './compute.js';
 import type { Journal, JournalLogEntry, JournalPoint } from './journal.js';
 import type { ServiceLimits } from './limits.js';
 import { errorReply, type ClientMessage, type CloseMessage, type ErrorCode, type NoteMessage, type OpenMessage, type PointsMessage, type ServerReply } from './protocol.js';
@@ -66,6 +67,8 @@ interface TrackState {
   lastProvisionalT: number;
   readonly flags: string[];
   notes: number;
+  /** Data-quality monitor of a live run (engine/quality.ts), fed in arrival order. */
+  quality?: QualityState;
 }
 
 interface DetailExtras {
@@ -123,6 +126,9 @@ export interface EventServiceOptions {
 
 const keyOf = (vignette: string, track: string): string => `${vignette}/${track}`;
 
+const EVIDENCE_NOTE =
+  'anytime-valid: the evidence (a test martingale) may be read after every run and runs may be added at will; reaching 1/alpha establishes a discrepancy with false-alarm probability at most alpha (Ville). The shared baseline makes runs of one vignette slightly dependent, so the bound is approximate.';
+
 export class EventService {
   readonly changes$ = new Subject<Change>();
   private readonly plan: EventPlan;
@@ -137,6 +143,7 @@ export class EventService {
   private readonly timeline: TimelinePoint[] = [];
   /** Judged live runs in the order their final judgement arrived (journal order on restore). */
   private readonly completionOrder: TrackState[] = [];
+  private evidence?: EvidenceResult;
   private staged: StagedAck[] = [];
   private closes: StagedClose[] = [];
   private readonly inflight = new Set<Promise<unknown>>();
@@ -192,7 +199,10 @@ export class EventService {
       if (p.t > t.maxT) t.maxT = p.t;
       points++;
     });
-    for (const t of this.tracks.values()) this.advanceCommitted(t);
+    for (const t of this.tracks.values()) {
+      this.advanceCommitted(t);
+      if (t.quality && t.closedAt === undefined) this.observeQuality(t, [...t.points.values()].sort((a, b) => a.seq - b.seq), false);
+    }
     const results = this.journal.results();
     for (const t of this.tracks.values()) {
       const stored = results.get(t.id) as StoredResult | undefined;
@@ -206,7 +216,13 @@ export class EventService {
     }
     const judged = [...this.tracks.values()].filter((t) => t.source === 'live' && t.report?.overall && t.closedAt !== undefined).sort((a, b) => (a.closedAt as number) - (b.closedAt as number) || a.id - b.id);
     for (const t of judged) this.addTimelinePoint(t, t.closedAt as number);
-    for (const e of this.journal.log()) this.pushLog(this.logView(e), false);
+    for (const e of this.journal.log()) {
+      const entry = this.logView(e);
+      this.pushLog(entry, false);
+      const t = entry.vignette && entry.track ? this.tracks.get(keyOf(entry.vignette, entry.track)) : undefined;
+      const kind = entry.kind === 'flag' ? entry.text.split(/[ :(]/)[0] : undefined;
+      if (t && kind && !t.flags.includes(kind)) t.flags.push(kind);
+    }
     for (const t of this.tracks.values()) if (t.source === 'live') t.notes = this.log.filter((e) => e.kind === 'note' && e.vignette === t.vignette && e.track === t.track).length;
     // Closed simulated tracks go to the worker; then every vignette with sims is fitted.
     const simsBy = new Map<string, RawTrack[]>();
@@ -228,6 +244,7 @@ export class EventService {
         }),
       ),
     );
+    this.refreshEvidence();
     // Live runs closed but never judged (a stop between close and result) are judged now.
     for (const t of this.tracks.values()) {
       if (t.source === 'live' && t.closedAt !== undefined && !t.report) this.judgeFinal(t);
@@ -388,6 +405,7 @@ export class EventService {
           b.track.times.add(p.t);
         }
         this.advanceCommitted(b.track);
+        this.observeQuality(b.track, b.staged, true);
         touched.add(b.track);
       }
       for (const b of batch) {
@@ -427,6 +445,10 @@ export class EventService {
         this.scheduleRefit(t.vignette);
       }));
     } else {
+      if (t.quality) {
+        const horizon = this.plan.vignettes.find((v) => v.id === t.vignette)?.horizon ?? t.maxT;
+        for (const f of closeQuality(t.quality, horizon)) this.raiseFlag(t, f);
+      }
       this.appendLog('event', t.vignette, t.track, t.maxT, { text: `live run ${t.track} closed after ${t.points.size} points` });
       this.judgeFinal(t);
       this.changes$.next({ kind: 'run', key: t.key });
@@ -505,8 +527,10 @@ export class EventService {
         const stored: StoredResult = { judgement: t.judgement as Judgement, report: t.report as RunReport, detail: t.detail, trail: t.trail, notJudged: t.notJudged };
         if (t.report) this.journal.saveResult(t.id, stored);
         this.addTimelinePoint(t, this.clock());
+        this.refreshEvidence();
         this.changes$.next({ kind: 'combined' });
-        this.changes$.next({ kind: 'vignette', id: t.vignette });
+        // Holm's adjustment ties the vignettes' verdicts together: all of them may change.
+        for (const id of this.vignettes.keys()) this.changes$.next({ kind: 'vignette', id });
       }),
     );
   }
@@ -532,6 +556,8 @@ export class EventService {
       components: res.model.eigenvalues.length,
       flags: [...a.flags],
       rms: r.rms ?? [],
+      practical: r.practical ? practicalRows(r.practical) : undefined,
+      diagnosis: r.diagnosis ? diagnosisRow(r.diagnosis) : undefined,
     };
     if (r.scoreCloud) t.trail = [...t.trail, [r.upTo, r.scoreCloud.run[0], r.scoreCloud.run[1]]];
     const M = a.active.length;
@@ -552,8 +578,21 @@ export class EventService {
       scores: r.scoreCloud ? { sims: r.scoreCloud.sims, eigenvalues: r.scoreCloud.eigenvalues } : undefined,
       reference: { l2: Array.from(res.reference.l2), score: Array.from(res.reference.score), residual: Array.from(res.reference.residual) },
     };
-    if (r.mode === 'final') t.report = runReport(this.plan, { vignette: t.vignette, track: t.track, samples: r.samples, assessment: a, rms: r.rms });
+    if (r.mode === 'final') t.report = runReport(this.plan, { vignette: t.vignette, track: t.track, samples: r.samples, assessment: a, rms: r.rms, practical: r.practical, diagnosis: r.diagnosis });
     this.changes$.next({ kind: 'run', key: t.key });
+  }
+
+  /** Recompute the sequential evidence from every final p-value, in completion order. */
+  private refreshEvidence(): void {
+    const runs = this.completionOrder.flatMap((t) => (t.report?.overall ? [{ stream: t.vignette, p: t.report.overall.pValue }] : []));
+    if (runs.length === 0) return;
+    this.track(
+      this.assessor.evidence(runs, this.plan.analysis.alpha).then((e) => {
+        this.evidence = e;
+        this.changes$.next({ kind: 'combined' });
+        for (const id of this.vignettes.keys()) this.changes$.next({ kind: 'vignette', id });
+      }),
+    );
   }
 
   // ---------------------------------------------------------------- views
@@ -589,7 +628,23 @@ export class EventService {
       const v = this.vignettes.get(pv.id) as VignetteState;
       return { id: pv.id, horizon: pv.horizon, summary: v.summary, error: v.reason, combined: this.combine(reports.filter((r) => r.vignette === pv.id)) };
     });
-    return assembleReport(this.plan, vignettes, reports, this.combine(reports), { baseline: this.baselineRead });
+    const e = this.evidence;
+    const sequential = e
+      ? {
+          threshold: e.threshold,
+          evidence: e.event.current,
+          established: e.event.established,
+          crossedAt: e.event.crossedAt,
+          vignettes: e.streams.filter((x) => x.runs > 0).map((x) => ({ id: x.vignette, evidence: x.current, established: x.established, runs: x.runs, advice: x.advice.message })),
+          advice: e.eventAdvice.message,
+          note: EVIDENCE_NOTE,
+        }
+      : undefined;
+    const log = this.journal.log().map((e) => {
+      const x = this.logView(e);
+      return { at: x.at, kind: x.kind, vignette: x.vignette, track: x.track, t: x.t, text: x.text, author: x.author };
+    });
+    return assembleReport(this.plan, vignettes, reports, this.combine(reports), { baseline: this.baselineRead }, { sequential, log });
   }
 
   runView(key: string): RunView | undefined {
@@ -616,6 +671,7 @@ export class EventService {
     const v = this.vignettes.get(id);
     const pv = this.plan.vignettes.find((x) => x.id === id);
     if (!v || !pv) return undefined;
+    const verdict = this.exportReport().vignettes.find((x) => x.id === id);
     return {
       id,
       label: pv.label,
@@ -623,6 +679,9 @@ export class EventService {
       condition: pv.condition,
       baseline: { status: v.status, sims: v.sims, components: v.summary?.components, varianceExplained: v.summary?.varianceExplained, reason: v.reason },
       combined: this.combinedView(this.combine(this.finalReports().filter((r) => r.vignette === id))),
+      evidence: this.evidence?.streams.find((x) => x.vignette === id && x.runs > 0),
+      adjustedPValue: verdict?.adjustedPValue,
+      verdict: verdict?.verdict ?? 'not judged',
     };
   }
 
@@ -637,7 +696,8 @@ export class EventService {
       vignettes: this.plan.vignettes.map((v) => this.vignetteView(v.id) as VignetteView),
       runs: [...this.tracks.values()].filter((t) => t.source === 'live').map((t) => this.runView(t.key) as RunView),
       combined: this.combinedEventView(),
-      timeline: [...this.timeline],
+      timeline: this.timeline.map((p, i) => ({ ...p, evidence: this.evidence?.event.martingale[i] })),
+      evidence: this.evidence ? { ...this.evidence, note: EVIDENCE_NOTE } : undefined,
       log: this.log.slice(-this.limits.logEntries),
       cautions: [...CAUTIONS],
     };
@@ -672,7 +732,24 @@ export class EventService {
       id, key: keyOf(vignette, track), vignette, track, source, order, openedAt,
       points: new Map(), times: new Set(), pending: new Map(), pendingTimes: new Set(),
       committedSeq: 0, maxT: 0, trail: [], lastProvisionalT: Number.NEGATIVE_INFINITY, flags: [], notes: 0,
+      quality: source === 'live' ? initialQuality({ channels: this.plan.channels, gapFactor: this.plan.analysis.gapFactor, reorderTolerance: this.limits.timeReversalTolerance }) : undefined,
     };
+  }
+
+  /** Feed committed points to the run's quality monitor; `announce` journals and shows new flags. */
+  private observeQuality(t: TrackState, points: readonly StagedPoint[], announce: boolean): void {
+    if (!t.quality) return;
+    for (const p of points) {
+      const r = observePoint(t.quality, { seq: p.seq, t: p.t, values: Array.from(p.values) });
+      t.quality = r.state;
+      if (announce) for (const f of r.flags) this.raiseFlag(t, f);
+    }
+  }
+
+  private raiseFlag(t: TrackState, f: QualityFlag): void {
+    if (!t.flags.includes(f.kind)) t.flags.push(f.kind);
+    this.appendLog('flag', t.vignette, t.track, f.t, { text: `${f.kind}${f.channelName ? ` (${f.channelName})` : ''}: ${f.detail}` });
+    this.changes$.next({ kind: 'run', key: t.key });
   }
 
   private advanceCommitted(t: TrackState): void {

@@ -297,7 +297,10 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
         return vignette ? [`vignette:${c.id}`, { type: 'vignette', vignette }] : undefined;
       }
       case 'combined':
-        return ['combined', { type: 'combined', combined: svc.combinedEventView(), timeline: svc.snapshot().timeline }];
+        {
+          const snap = svc.snapshot();
+          return ['combined', { type: 'combined', combined: snap.combined, timeline: snap.timeline, evidence: snap.evidence }];
+        }
       case 'log':
         return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
     }

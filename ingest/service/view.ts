@@ -4,6 +4,12 @@
  * flight) are always marked `provisional`; only final values enter combined evidence.
  */
 import type { ChannelEnvelope } from '../../engine/envelope.js';
+import type { DiagnosisRow, PracticalRow } from '../report.js';
+import type { EvidenceResult } from './compute.js';
+
+/** Anytime-valid evidence (test martingale, threshold 1/alpha) and the run-count advice. */
+export type EvidenceView = EvidenceResult & { readonly note: string };
+export type VignetteEvidenceView = EvidenceResult['streams'][number];
 
 export interface PValues {
   readonly l2: number;
@@ -23,6 +29,10 @@ export interface Judgement {
   readonly flags: readonly string[];
   /** RMS deviation from the simulated mean per channel (channel units). */
   readonly rms: readonly number[];
+  /** Practical difference in physical units (a separate answer from the p-value). */
+  readonly practical?: readonly PracticalRow[];
+  /** Final judgements of runs that stand out: the dominant kind of discrepancy. */
+  readonly diagnosis?: DiagnosisRow;
 }
 
 export interface RunView {
@@ -56,6 +66,11 @@ export interface VignetteView {
     readonly reason?: string;
   };
   readonly combined?: CombinedView;
+  /** Sequential evidence of this vignette's runs and the advice on more runs. */
+  readonly evidence?: VignetteEvidenceView;
+  /** Holm-adjusted over the event's vignettes, and its verdict at the plan's alpha. */
+  readonly adjustedPValue?: number;
+  readonly verdict: 'distinguishable' | 'not distinguishable' | 'not judged';
 }
 
 export interface CombinedView {
@@ -85,6 +100,8 @@ export interface TimelinePoint {
   readonly runs: number;
   /** Fixed-sample combination of the final p-values so far (plan's method). */
   readonly pValue: number;
+  /** The event's anytime-valid evidence (test martingale) after this run. */
+  readonly evidence?: number;
 }
 
 export interface EventView {
@@ -98,6 +115,7 @@ export interface EventView {
   readonly runs: readonly RunView[];
   readonly combined?: CombinedView & { readonly alpha: number; readonly distinguishable: boolean };
   readonly timeline: readonly TimelinePoint[];
+  readonly evidence?: EvidenceView;
   readonly log: readonly LogEntryView[];
   readonly cautions: readonly string[];
 }
@@ -128,7 +146,7 @@ export type WatchMessage =
   | { readonly type: 'snapshot'; readonly state: EventView }
   | { readonly type: 'run'; readonly run: RunView }
   | { readonly type: 'vignette'; readonly vignette: VignetteView }
-  | { readonly type: 'combined'; readonly combined: EventView['combined']; readonly timeline: EventView['timeline'] }
+  | { readonly type: 'combined'; readonly combined: EventView['combined']; readonly timeline: EventView['timeline']; readonly evidence?: EventView['evidence'] }
   | { readonly type: 'log'; readonly entry: LogEntryView };
 
 /** Envelope arrays for JSON (NaN-free). */

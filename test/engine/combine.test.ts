@@ -87,3 +87,19 @@ describe('combinePValues', () => {
     expect(() => combinePValues([1.2], 'cauchy')).toThrow(RangeError);
   });
 });
+
+describe('Holm adjustment', () => {
+  it('matches a hand computation from the definition (Holm 1979)', async () => {
+    const { holmAdjust } = await import('../../engine/combine.js');
+    // p = [0.01, 0.04, 0.03, 0.005]; sorted 0.005, 0.01, 0.03, 0.04 → ×4, ×3, ×2, ×1 = 0.02, 0.03, 0.06, 0.04 → running max 0.02, 0.03, 0.06, 0.06
+    const got = holmAdjust([0.01, 0.04, 0.03, 0.005]);
+    [0.03, 0.06, 0.06, 0.02].forEach((v, i) => expectClose(got[i], v, 1e-12, 1e-15, `holm[${i}]`));
+  });
+  it('never lowers a p-value and caps at 1', async () => {
+    const { holmAdjust } = await import('../../engine/combine.js');
+    const p = [0.2, 0.5, 0.9, 0.01];
+    const a = holmAdjust(p);
+    p.forEach((x, i) => expect(a[i]).toBeGreaterThanOrEqual(x));
+    expect(Math.max(...a)).toBeLessThanOrEqual(1);
+  });
+});

@@ -63,3 +63,55 @@ export function sampleTrack(rng: Rng, id: string, options: SampleOptions = {}): 
 export function sampleBaseline(rng: Rng, n: number, dtNominal = 0.5): RawTrack[] {
   return Array.from({ length: n }, (_, i) => sampleTrack(rng, `sim-${i}`, { dtNominal }));
 }
+
+// ---------------------------------------------------------------------------------------------
+// A manoeuvre generator (added for the diagnosis tests; the functions above are unchanged).
+
+/** Time of the manoeuvre ("the turn") of the manoeuvre generator (s) and its sd between runs. */
+export const TURN_TIME = 50;
+export const TURN_JITTER_SD = 1;
+
+/** Discrepancies of the manoeuvre generator: those above, or the whole track late by `seconds`. */
+export type ManoeuvreDiscrepancy = Discrepancy | { kind: 'timeShift'; seconds: number };
+
+export interface ManoeuvreOptions {
+  readonly dtNominal?: number;
+  readonly discrepancy?: ManoeuvreDiscrepancy;
+  /** Multiplies the measurement noise sd of both channels (default 1): a noisier run. */
+  readonly noiseFactor?: number;
+}
+
+/**
+ * The smooth process of `sampleTrack` plus a manoeuvre at T = TURN_TIME + TURN_JITTER_SD·z: channel 1
+ * ("angle") steps up by 8 deg along a logistic of scale 2 s, and channel 0 ("position") changes slope
+ * by −0.5 m/s through a softplus of scale 3 s. The timing of the manoeuvre varies between runs, so a
+ * time shift of a few seconds is a discrepancy only beyond that natural variation. A `timeShift`
+ * discrepancy evaluates the whole truth (trend, modes, manoeuvre) at t − seconds: the run is late.
+ * Other discrepancies act on channel 0 as in `sampleTrack`. Noise sd 1 m and 0.05 deg (× noiseFactor).
+ */
+export function sampleManoeuvreTrack(rng: Rng, id: string, options: ManoeuvreOptions = {}): RawTrack {
+  const dt = options.dtNominal ?? 0.5;
+  const d = options.discrepancy ?? { kind: 'none' };
+  const k = options.noiseFactor ?? 1;
+  const a = Float64Array.from({ length: 6 }, () => rng.normal());
+  const turn = TURN_TIME + TURN_JITTER_SD * rng.normal();
+  const lag = d.kind === 'timeShift' ? d.seconds : 0;
+  const rest: Discrepancy = d.kind === 'timeShift' ? { kind: 'none' } : d;
+  const t: number[] = [];
+  const y0: number[] = [];
+  const y1: number[] = [];
+  for (let s = rng.uniform() * 0.2 * dt; s <= H; s += dt * (0.8 + 0.4 * rng.uniform())) {
+    if (rng.uniform() < 0.03) continue;
+    const u = s - lag;
+    const x = (u - turn) / 3;
+    const softplus = 3 * (x > 30 ? x : Math.log1p(Math.exp(x)));
+    t.push(s);
+    y0.push(truthAt(u, a, 0, rest) - 0.5 * softplus + k * NOISE[0] * rng.normal());
+    y1.push(truthAt(u, a, 1, rest) + 8 / (1 + Math.exp(-(u - turn) / 2)) + k * NOISE[1] * rng.normal());
+  }
+  return { vignette: 'V', track: id, t: Float64Array.from(t), values: [Float64Array.from(y0), Float64Array.from(y1)] };
+}
+
+export function sampleManoeuvreBaseline(rng: Rng, n: number): RawTrack[] {
+  return Array.from({ length: n }, (_, i) => sampleManoeuvreTrack(rng, `sim-${i}`));
+}

@@ -1,0 +1,19 @@
+/** The README's protocol schema is the one the server validates with (it cannot drift). */
+import { readFileSync } from 'node:fs';
+import { describe, expect, it } from 'vitest';
+import { protocolJsonSchema } from '../ingest/service/protocol.js';
+
+describe('README', () => {
+  it('embeds the feed protocol JSON Schema generated from the validators', () => {
+    const readme = readFileSync('README.md', 'utf8');
+    const block = /<summary>JSON Schema of client messages[\s\S]*?```json\n([\s\S]*?)\n```/.exec(readme);
+    expect(block, 'README has the schema block').not.toBeNull();
+    expect(JSON.parse(block![1])).toEqual(protocolJsonSchema());
+  });
+
+  it('quickstart has exactly the two commands', () => {
+    const readme = readFileSync('README.md', 'utf8');
+    const quick = /## Quickstart[\s\S]*?```sh\n([\s\S]*?)```/.exec(readme)?.[1] ?? '';
+    expect(quick.trim().split('\n').map((l) => l.replace(/#.*$/, '').trim())).toEqual(['npm ci && npm start', 'npm test']);
+  });
+});
