@@ -7,6 +7,7 @@
  *   schema      print the JSON Schema of the plan, the assessment document or the feed protocol
  *   serve       the live service: WebSocket feed, journal, running assessment, dashboard
  *   replay      send recorded tracks to a running service as a producer would
+ *   report      write the HTML debrief from an assessment document or a running service
  *
  * Exit codes: 0 success; 2 bad input or usage; 3 internal failure.
  */
@@ -19,7 +20,8 @@ import { assessmentReportSchema } from '../report.js';
 import { assessFiles, formatReport, writeReport } from './assess.js';
 import { writeDemoFiles } from './demo-files.js';
 import { DemoError, runDemo } from './demo.js';
-import { readFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { renderDebrief } from './debrief.js';
 import { JournalError } from '../service/journal.js';
 import { protocolJsonSchema } from '../service/protocol.js';
 import { replay, ReplayError } from '../service/replay.js';
@@ -56,6 +58,8 @@ commands:
   replay --live FILE [--baseline FILE] [--plan FILE] [--url ws://HOST:PORT/feed] [--speed X]
          [--overlap N] [--token-file F]
       send recorded runs to a running service at their recorded pace times --speed
+  report (--in FILE | --url http://HOST:PORT) [--out FILE]
+      write the debrief (self-contained HTML) from an assessment document or a running service
 
 exit codes: 0 success, 2 bad input or usage, 3 internal failure`;
 
@@ -130,6 +134,8 @@ async function run(argv: string[]): Promise<number> {
     }
     case 'serve':
       return serve(rest);
+    case 'report':
+      return reportCommand(rest);
     case 'replay':
       return replayCommand(rest);
     case undefined:
@@ -238,6 +244,31 @@ async function demo(args: string[]): Promise<number> {
     });
   }
   await server.close();
+  return EXIT_OK;
+}
+
+async function reportCommand(args: string[]): Promise<number> {
+  const { values } = parse(args, { in: { type: 'string' }, url: { type: 'string' }, out: { type: 'string' } });
+  let doc: unknown;
+  if (typeof values.in === 'string') {
+    try {
+      doc = JSON.parse(readFileSync(values.in, 'utf8'));
+    } catch (e) {
+      throw new UsageError(`cannot read ${values.in}: ${e instanceof Error ? e.message : String(e)}`);
+    }
+  } else if (typeof values.url === 'string') {
+    const res = await fetch(`${values.url.replace(/\/$/, '')}/api/export`).catch((e: unknown) => {
+      throw new UsageError(`cannot reach ${values.url}: ${e instanceof Error ? e.message : String(e)}`);
+    });
+    doc = await res.json();
+  } else {
+    throw new UsageError('report: give --in FILE or --url http://HOST:PORT');
+  }
+  const parsed = assessmentReportSchema.safeParse(doc);
+  if (!parsed.success) throw new UsageError(`not an assessment document: ${parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}`);
+  const out = typeof values.out === 'string' ? values.out : 'debrief.html';
+  writeFileSync(out, renderDebrief(parsed.data));
+  process.stderr.write(`wrote ${out}\n`);
   return EXIT_OK;
 }
 

@@ -260,6 +260,7 @@ export class EventService {
    */
   receive(role: Role, msg: ClientMessage, reply: (r: ServerReply) => void): void {
     if (this.closed) return reply(errorReply('INTERNAL', 'the service is shutting down', msg.id));
+    if (msg.type === 'ping') return reply({ v: 1, type: 'pong', id: msg.id });
     if (role === 'watcher' && msg.type !== 'note') {
       return reply(errorReply('NOT_PERMITTED', `a dashboard connection may only send notes, not "${msg.type}"`, msg.id));
     }
@@ -707,7 +708,8 @@ export class EventService {
     const t = this.tracks.get(keyOf(vignette, track));
     const run = this.runView(keyOf(vignette, track));
     if (!t || !run) return undefined;
-    const raw = this.rawTrack(t, false);
+    // Circular channels unwrapped, as the smoothed curve and the envelope are.
+    const raw = this.rawTrack(t);
     const v = this.vignettes.get(vignette);
     return {
       run,

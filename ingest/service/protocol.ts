@@ -3,8 +3,8 @@
  * definition; the JSON Schema in the README is generated from them (`plumbline schema protocol`).
  *
  * Producer → server (path /feed):  open, points, close, note
- * Dashboard → server (path /watch): note only
- * Server → client: opened, ack, error, (dashboards) snapshot and deltas
+ * Dashboard → server (path /watch): note, ping
+ * Server → client: opened, ack, closed, noted, pong, error, (dashboards) snapshot and deltas
  *
  * Every client message has `v` (protocol version, 1), `type` and an `id` chosen by the sender;
  * the reply to it carries the same id.
@@ -59,7 +59,13 @@ export const noteSchema = z.strictObject({
   author: z.string().max(DEFAULT_LIMITS.maxIdLength).optional(),
 });
 
-export const clientMessageSchema = z.discriminatedUnion('type', [openSchema, pointsSchema, closeSchema, noteSchema]);
+export const pingSchema = z.strictObject({
+  v: z.literal(PROTOCOL_VERSION),
+  type: z.literal('ping'),
+  id,
+});
+
+export const clientMessageSchema = z.discriminatedUnion('type', [openSchema, pointsSchema, closeSchema, noteSchema, pingSchema]);
 export type ClientMessage = z.infer<typeof clientMessageSchema>;
 export type OpenMessage = z.infer<typeof openSchema>;
 export type PointsMessage = z.infer<typeof pointsSchema>;
@@ -132,6 +138,13 @@ export interface ClosedReply {
   readonly track: string;
 }
 
+/** Answer to `ping` (an application-level liveness probe: browsers cannot send WebSocket pings). */
+export interface PongReply {
+  readonly v: 1;
+  readonly type: 'pong';
+  readonly id: string;
+}
+
 export interface NotedReply {
   readonly v: 1;
   readonly type: 'noted';
@@ -139,7 +152,7 @@ export interface NotedReply {
   readonly entry: number;
 }
 
-export type ServerReply = ErrorReply | AckReply | OpenedReply | ClosedReply | NotedReply;
+export type ServerReply = ErrorReply | AckReply | OpenedReply | ClosedReply | NotedReply | PongReply;
 
 export function errorReply(code: ErrorCode, reason: string, msgId?: string, rejected?: ErrorReply['rejected']): ErrorReply {
   return { v: 1, type: 'error', id: msgId, code, reason, ...(rejected ? { rejected } : {}) };

@@ -179,7 +179,16 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       const rel = normalize(decodeURIComponent(path === '/' ? '/index.html' : path)).replace(/^([/\\])+/, '');
       const file = join(staticRoot, rel);
       if (!file.startsWith(staticRoot) || !existsSync(file) || !statSync(file).isFile()) return sendJson(res, 404, { error: 'NOT_FOUND', reason: `no file ${path}` });
-      res.writeHead(200, { 'content-type': MIME[extname(file)] ?? 'application/octet-stream', 'cache-control': 'no-cache' });
+      const headers: Record<string, string> = {
+        'content-type': MIME[extname(file)] ?? 'application/octet-stream',
+        'x-content-type-options': 'nosniff',
+        // Built assets carry a content hash in their names; the page itself is always revalidated.
+        'cache-control': rel.startsWith('assets/') ? 'public, max-age=31536000, immutable' : 'no-cache',
+      };
+      if (extname(file) === '.html') {
+        headers['content-security-policy'] = "default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data:; font-src 'self'; connect-src 'self'; object-src 'none'; base-uri 'self'; form-action 'none'; frame-ancestors 'none'";
+      }
+      res.writeHead(200, headers);
       createReadStream(file).pipe(res);
     } catch (e) {
       sendJson(res, 500, { error: 'INTERNAL', reason: e instanceof Error ? e.message : String(e) });

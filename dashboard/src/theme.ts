@@ -1,0 +1,159 @@
+/**
+ * The visual language: one colour-blind-safe palette (Okabe & Ito, "Color Universal Design", 2008)
+ * and the styles every panel shares. Colour is never the only cue: each status also has a shape and
+ * a word (see `status-*` classes and the markers in the charts).
+ */
+import { css, unsafeCSS } from 'lit';
+
+export const COLORS = {
+  ink: '#1b2330',
+  muted: '#566070',
+  faint: '#8a93a3',
+  rule: '#d9dde4',
+  panel: '#ffffff',
+  page: '#eef0f3',
+  /** Simulation: bands, mean, cloud. */
+  sim: '#0072B2',
+  simDark: '#0b3a5c',
+  band99: '#dcebf6',
+  band90: '#b9d6ec',
+  band50: '#8dbde0',
+  simultaneous: '#8c3f73',
+  texture: '#9aa5b4',
+  /** The live run. */
+  live: '#D55E00',
+  raw: '#1b2330',
+  projection: '#E69F00',
+  /** Status hues (always with a shape and a word). */
+  low: '#D55E00',
+  high: '#0072B2',
+  ok: '#009E73',
+  busy: '#B07800',
+  alpha: '#CC79A7',
+} as const;
+
+/** Constants of our own (never text from outside) go into CSS through unsafeCSS. */
+/** Monospace digits for aligned numbers; the system stacks only (nothing is downloaded). */
+export const FONT = `system-ui, -apple-system, "Segoe UI", Roboto, "Noto Sans", "Liberation Sans", Arial, sans-serif`;
+export const MONO = `ui-monospace, "SFMono-Regular", "DejaVu Sans Mono", "Liberation Mono", Menlo, Consolas, monospace`;
+
+export const shared = css`
+  :host {
+    box-sizing: border-box;
+    color: ${unsafeCSS(COLORS.ink)};
+    font-family: ${unsafeCSS(FONT)};
+    font-size: 13px;
+    line-height: 1.4;
+  }
+  *,
+  *::before,
+  *::after {
+    box-sizing: inherit;
+  }
+  h2 {
+    font-size: 12px;
+    font-weight: 650;
+    letter-spacing: 0.06em;
+    text-transform: uppercase;
+    color: var(--pl-muted);
+    margin: 0;
+  }
+  .num {
+    font-family: ${unsafeCSS(MONO)};
+    font-variant-numeric: tabular-nums;
+  }
+  .muted {
+    color: var(--pl-muted);
+  }
+  .sr-only {
+    position: absolute;
+    width: 1px;
+    height: 1px;
+    padding: 0;
+    margin: -1px;
+    overflow: hidden;
+    clip: rect(0, 0, 0, 0);
+    white-space: nowrap;
+    border: 0;
+  }
+  :focus-visible {
+    outline: 3px solid var(--pl-focus);
+    outline-offset: 1px;
+  }
+  button {
+    font: inherit;
+    color: inherit;
+    cursor: pointer;
+  }
+  .caption {
+    color: var(--pl-muted);
+    font-size: 11.5px;
+    margin: 4px 0 0;
+  }
+  /* p-values: final is filled and upright, provisional hollow, italic and says so. */
+  .p {
+    display: inline-flex;
+    align-items: baseline;
+    gap: 4px;
+    white-space: nowrap;
+  }
+  .p .mark {
+    font-style: normal;
+    font-size: 11px;
+  }
+  .p.low {
+    color: var(--pl-low);
+  }
+  .p.high {
+    color: var(--pl-high);
+  }
+  .p.final .value {
+    font-weight: 700;
+  }
+  .p.provisional .value {
+    font-style: italic;
+    font-weight: 400;
+  }
+  .p .word {
+    font-size: 11px;
+    font-style: italic;
+    color: var(--pl-muted);
+  }
+  .chip {
+    display: inline-block;
+    border: 1px solid var(--pl-rule);
+    border-radius: 3px;
+    padding: 0 5px;
+    font-size: 11px;
+    line-height: 17px;
+    white-space: nowrap;
+    background: #f7f8fa;
+  }
+  .chip.flag {
+    border-color: #e3b891;
+    background: #fdf3ea;
+    color: #7a3500;
+  }
+  .chip.ok {
+    border-color: #9fc3dd;
+    background: #eef5fa;
+    color: #174a6e;
+  }
+`;
+
+/** Custom properties for the whole page (set on pl-app's host; inherited through shadow roots). */
+export const pageVars = css`
+  :host {
+    --pl-ink: ${unsafeCSS(COLORS.ink)};
+    --pl-muted: ${unsafeCSS(COLORS.muted)};
+    --pl-rule: ${unsafeCSS(COLORS.rule)};
+    --pl-panel: ${unsafeCSS(COLORS.panel)};
+    --pl-page: ${unsafeCSS(COLORS.page)};
+    --pl-low: ${unsafeCSS(COLORS.low)};
+    --pl-high: ${unsafeCSS(COLORS.high)};
+    --pl-ok: ${unsafeCSS(COLORS.ok)};
+    --pl-busy: ${unsafeCSS(COLORS.busy)};
+    --pl-focus: #1f6feb;
+    --pl-selected: #fff4d6;
+  }
+`;

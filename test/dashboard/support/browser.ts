@@ -1,0 +1,132 @@
+/**
+ * Shared pieces of the dashboard's browser tests: the build (made here when missing or stale), the
+ * system Chromium driven by playwright-core, and a page watcher that records console errors and
+ * every request the page makes.
+ *
+ * Browser: Debian's `chromium` at /usr/bin/chromium (or PLUMBLINE_CHROMIUM). playwright-core 1.64
+ * speaks the DevTools protocol of Chromium 156; the major version is checked against the pin
+ * (node_modules/playwright-core/browsers.json), and a missing or mismatched browser fails the test
+ * with the command that installs it. No browser is ever downloaded.
+ *
+ * Build: the tests serve dist/dashboard (what `npm run build` writes). When it is missing or older
+ * than any source of the dashboard, `vite build` is run here first (about 5 s), so `vitest run`
+ * alone works after editing the dashboard.
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, mkdirSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { chromium, type Browser, type ConsoleMessage, type Page } from 'playwright-core';
+
+export const ROOT = resolve(import.meta.dirname, '../../..');
+export const DIST = join(ROOT, 'dist', 'dashboard');
+export const ARTIFACTS = join(ROOT, 'test', 'artifacts');
+export const CHROMIUM = process.env.PLUMBLINE_CHROMIUM ?? '/usr/bin/chromium';
+
+const INSTALL = 'apt-get update && apt-get install -y chromium';
+
+function newestMtime(path: string): number {
+  const s = statSync(path);
+  if (!s.isDirectory()) return s.mtimeMs;
+  return Math.max(s.mtimeMs, ...readdirSync(path).map((n) => newestMtime(join(path, n))));
+}
+
+function isFresh(): boolean {
+  const index = join(DIST, 'index.html');
+  const sources = Math.max(newestMtime(join(ROOT, 'dashboard')), newestMtime(join(ROOT, 'vite.config.ts')), newestMtime(join(ROOT, 'package-lock.json')));
+  return existsSync(index) && statSync(index).mtimeMs >= sources;
+}
+
+const sleep = (ms: number) => Atomics.wait(new Int32Array(new SharedArrayBuffer(4)), 0, 0, ms);
+
+/**
+ * Build the dashboard when dist/dashboard is missing or older than its sources. Test files run in
+ * parallel: a lock directory makes one of them build while the others wait (at most 2 minutes).
+ */
+export function ensureDashboardBuilt(): 'fresh' | 'built' {
+  if (isFresh()) return 'fresh';
+  const lock = join(ROOT, 'dist', '.dashboard-build.lock');
+  mkdirSync(join(ROOT, 'dist'), { recursive: true });
+  for (let i = 0; ; i++) {
+    try {
+      mkdirSync(lock);
+      break;
+    } catch {
+      if (i >= 1200) throw new Error(`another dashboard build holds ${lock} for over 2 minutes; remove it if no build is running`);
+      sleep(100);
+      if (isFresh()) return 'fresh';
+    }
+  }
+  try {
+    if (isFresh()) return 'fresh';
+    execFileSync(process.execPath, [join(ROOT, 'node_modules', 'vite', 'bin', 'vite.js'), 'build', '--logLevel', 'warn'], { cwd: ROOT, stdio: 'pipe' });
+    if (!existsSync(join(DIST, 'index.html'))) throw new Error(`vite build did not write ${join(DIST, 'index.html')}`);
+    return 'built';
+  } finally {
+    rmSync(lock, { recursive: true, force: true });
+  }
+}
+
+/** The Chromium major version playwright-core was built for. */
+export function pinnedChromiumMajor(): number {
+  const browsers = JSON.parse(readFileSync(join(ROOT, 'node_modules', 'playwright-core', 'browsers.json'), 'utf8')) as { browsers: Array<{ name: string; browserVersion: string }> };
+  const c = browsers.browsers.find((b) => b.name === 'chromium');
+  if (!c) throw new Error('playwright-core/browsers.json names no chromium');
+  return Number(c.browserVersion.split('.')[0]);
+}
+
+/** Launch the system Chromium headless; throws (never skips) with the install command when it is missing. */
+export async function launchChromium(): Promise<Browser> {
+  if (!existsSync(CHROMIUM)) {
+    throw new Error(`The dashboard's browser tests need Chromium at ${CHROMIUM} and it is not there. Install Debian's package: \`${INSTALL}\` (or set PLUMBLINE_CHROMIUM to a Chromium ${pinnedChromiumMajor()} binary). No browser is downloaded by npm.`);
+  }
+  const version = execFileSync(CHROMIUM, ['--version'], { encoding: 'utf8' }).trim();
+  const major = Number(/(\d+)\./.exec(version)?.[1]);
+  const pinned = pinnedChromiumMajor();
+  if (major !== pinned) {
+    throw new Error(`${CHROMIUM} is "${version}" but playwright-core in package.json is built for Chromium ${pinned}: install the matching Debian chromium (\`${INSTALL}\`) or change the playwright-core pin.`);
+  }
+  return chromium.launch({
+    executablePath: CHROMIUM,
+    headless: true,
+    args: [
+      '--no-sandbox',
+      '--disable-gpu',
+      '--disable-background-networking',
+      '--disable-component-update',
+      '--disable-sync',
+      '--no-first-run',
+      '--disable-quic',
+      // The browser's own calls home go to a dead end; loopback (the page's server) is never proxied.
+      '--proxy-server=http://127.0.0.1:9',
+      '--proxy-bypass-list=127.0.0.1;localhost',
+    ],
+  });
+}
+
+export interface PageWatch {
+  readonly errors: string[];
+  /** Requests (and WebSockets) of the page to any origin but `origin`. */
+  readonly foreign: string[];
+  readonly requests: string[];
+}
+
+/** Record console errors, uncaught exceptions and the page's requests. */
+export function watchPage(page: Page, origin: string): PageWatch {
+  const watch: PageWatch = { errors: [], foreign: [], requests: [] };
+  const wsOrigin = origin.replace(/^http/, 'ws');
+  page.on('console', (m: ConsoleMessage) => {
+    if (m.type() === 'error') watch.errors.push(`console: ${m.text()}`);
+  });
+  page.on('pageerror', (e) => watch.errors.push(`uncaught: ${e.message}`));
+  page.on('request', (r) => {
+    const url = r.url();
+    watch.requests.push(url);
+    if (!url.startsWith(`${origin}/`) && !url.startsWith('data:')) watch.foreign.push(url);
+  });
+  page.on('websocket', (ws) => {
+    const url = ws.url();
+    watch.requests.push(url);
+    if (!url.startsWith(`${wsOrigin}/`)) watch.foreign.push(url);
+  });
+  return watch;
+}
