@@ -81,6 +81,8 @@ interface VignetteState {
   baseline?: Baseline;
   simMean?: Float64Array;
   projection?: ProjectionModel;
+  /** Scores of the simulated runs on the first two components of the full-window model: the sign reference for score views. */
+  referenceScores?: [Float64Array, Float64Array];
   windows: Map<string, Float64Array[]>;
 }
 
@@ -117,6 +119,9 @@ export class Compute {
       v.baseline = baseline;
       v.simMean = meanCurve(baseline.curves);
       v.projection = fitProjectionModel(baseline.curves, windowWeights(baseline.grid, fullWindow(baseline.horizon)), this.config.channels.length);
+      // The projection model's leading components are those of the simulated runs over the whole horizon.
+      const pm = v.projection.fpca;
+      v.referenceScores = [Float64Array.from(pm.scores, (r) => r[0] ?? 0), Float64Array.from(pm.scores, (r) => r[1] ?? 0)];
       return {
         vignette,
         sims: sims.length,
@@ -219,10 +224,20 @@ export class Compute {
       const m = assessment.result.model;
       const N = m.n - 1;
       const k2 = Math.min(2, m.eigenvalues.length);
-      const col = (k: number) => (k < k2 ? Array.from({ length: N }, (_, i) => m.scores[i][k]) : new Array<number>(N).fill(0));
+      // Each fit's components have an arbitrary sign; orient them like the full-window model's (by
+      // the simulated runs' scores) so that a run's trail over successive fits does not jump.
+      const ref = v.referenceScores;
+      const sign = (k: number): number => {
+        if (!ref || k >= k2 || ref[k].length !== N) return 1;
+        let c = 0;
+        for (let i = 0; i < N; i++) c += m.scores[i][k] * ref[k][i];
+        return c < 0 ? -1 : 1;
+      };
+      const signs = [sign(0), sign(1)];
+      const col = (k: number) => (k < k2 ? Array.from({ length: N }, (_, i) => signs[k] * m.scores[i][k]) : new Array<number>(N).fill(0));
       const scoreCloud = {
         sims: [col(0), col(1)] as [number[], number[]],
-        run: [k2 > 0 ? m.scores[N][0] : 0, k2 > 1 ? m.scores[N][1] : 0] as [number, number],
+        run: [k2 > 0 ? signs[0] * m.scores[N][0] : 0, k2 > 1 ? signs[1] * m.scores[N][1] : 0] as [number, number],
         eigenvalues: [m.eigenvalues[0] ?? 0, m.eigenvalues[1] ?? 0] as [number, number],
       };
       return { ...base, upTo, assessment, rms: rmsDeviation(assessment, ready.baseline, v.simMean), practical, diagnosis, projection, scoreCloud, ms: performance.now() - start };

@@ -555,7 +555,9 @@ export class EventService {
       statistics: { ...res.live },
       simsUsed: a.simsUsed,
       components: res.model.eigenvalues.length,
-      flags: [...a.flags],
+      // A run in flight is partial by nature and its early prefixes are short: those two window
+      // flags say nothing while it flies, so only final judgements carry them.
+      flags: r.mode === 'final' ? [...a.flags] : a.flags.filter((f) => f !== 'partial' && f !== 'few-samples'),
       rms: r.rms ?? [],
       practical: r.practical ? practicalRows(r.practical) : undefined,
       diagnosis: r.diagnosis ? diagnosisRow(r.diagnosis) : undefined,

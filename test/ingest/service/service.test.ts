@@ -102,6 +102,26 @@ describe('one engine, two paths', () => {
   });
 });
 
+describe('simulated runs streamed over the feed', () => {
+  it('a baseline that arrives as sim tracks is fitted (off the event loop) and judges the live runs like the batch path', async () => {
+    const sims = (await readTracks(files.baseline, plan)).tracks;
+    const server = await startServer({ planPath: files.plan, journalPath: join(dir, 'sims.sqlite'), port: 0, refitDelayMs: 200 });
+    try {
+      expect(server.service.snapshot().vignettes.every((v) => v.baseline.status === 'waiting' && v.baseline.sims === 0)).toBe(true);
+      const summary = await replay({ url: feedUrl(server), plan, live: [], sims, speed: 0 });
+      expect(summary.errors).toBe(0);
+      await server.service.settle();
+      const state = server.service.snapshot();
+      expect(state.vignettes.every((v) => v.baseline.status === 'ready' && v.baseline.sims === 40)).toBe(true);
+      await replay({ url: feedUrl(server), plan, live, speed: 0, overlap: 3 });
+      await server.service.settle();
+      expectSameAsBatch(server.service.exportReport());
+    } finally {
+      await server.close();
+    }
+  });
+});
+
 describe('restart from the journal', () => {
   it('stopped mid-stream and started again on the same journal, the finished event gives the same results', async () => {
     const journalPath = join(dir, 'b.sqlite');
@@ -133,6 +153,8 @@ describe('restart from the journal', () => {
       const restored = second.service.exportReport();
       expect(restored.runs).toEqual(before.runs);
       expect(restored.combined).toEqual(before.combined);
+      expect(restored.sequential).toEqual(before.sequential);
+      expect(restored.vignettes).toEqual(before.vignettes);
       const open = second.service.snapshot().runs.find((r) => r.key === `${live[4].vignette}/${live[4].track}`);
       expect(open?.status).toBe('in-flight');
       expect(open?.points).toBe(Math.floor(live[4].t.length / 2));
