@@ -9,22 +9,12 @@ import { channelScales, inSampleStatistics, joinedWeights, rankPValue } from '..
 import { fitFpca, projectCurve } from '../../engine/fpca.js';
 import { fullWindow, windowWeights } from '../../engine/grid.js';
 import { createRng } from '../../engine/rng.js';
-import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
+import type { RawTrack } from '../../engine/types.js';
 import { binomialInterval } from '../support/compare.js';
-import { H, sampleBaseline, sampleTrack, type Discrepancy, type SampleOptions } from '../support/synthetic.js';
+import { SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, H, sampleBaseline, sampleTrack, type Discrepancy, type SampleOptions } from '../support/synthetic.js';
 
-const channels: ChannelSpec[] = [
-  { name: 'position', unit: 'm' },
-  { name: 'angle', unit: 'deg' },
-];
-const settings: AnalysisSettings = {
-  alpha: 0.05,
-  components: { kind: 'variance', fraction: 0.95 },
-  gridSize: 64,
-  segments: 25,
-  combination: 'fisher',
-  gapFactor: 6,
-};
+const channels = SYNTHETIC_CHANNELS;
+const settings = SYNTHETIC_SETTINGS;
 const N_SIMS = 99;
 const REPS = 400;
 const ALPHA = 0.05;

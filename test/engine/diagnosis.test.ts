@@ -11,22 +11,12 @@ import { diagnose, diagnoseRun, noiseSd, robustLogZ, type DiagnosisInput, type D
 import { fullWindow, windowWeights } from '../../engine/grid.js';
 import { meanCurve } from '../../engine/event.js';
 import { createRng } from '../../engine/rng.js';
-import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
+import type { RawTrack } from '../../engine/types.js';
 import { binomialInterval, expectClose } from '../support/compare.js';
-import { H, sampleManoeuvreBaseline, sampleManoeuvreTrack, type ManoeuvreOptions } from '../support/synthetic.js';
+import { SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, H, sampleManoeuvreBaseline, sampleManoeuvreTrack, type ManoeuvreOptions } from '../support/synthetic.js';
 
-const channels: ChannelSpec[] = [
-  { name: 'position', unit: 'm' },
-  { name: 'angle', unit: 'deg' },
-];
-const settings: AnalysisSettings = {
-  alpha: 0.05,
-  components: { kind: 'variance', fraction: 0.95 },
-  gridSize: 64,
-  segments: 25,
-  combination: 'fisher',
-  gapFactor: 6,
-};
+const channels = SYNTHETIC_CHANNELS;
+const settings = SYNTHETIC_SETTINGS;
 const baseline = buildBaseline('V', H, channels, sampleManoeuvreBaseline(createRng(11), 99), settings);
 const M = baseline.grid.points.length;
 const weights = windowWeights(baseline.grid, fullWindow(H));

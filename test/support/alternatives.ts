@@ -10,8 +10,7 @@
 import { assessRun, buildBaseline } from '../../engine/assess.js';
 import { combinePValues } from '../../engine/combine.js';
 import { createRng, type Rng } from '../../engine/rng.js';
-import type { AnalysisSettings, ChannelSpec } from '../../engine/types.js';
-import { H, sampleBaseline, sampleTrack, type Discrepancy } from './synthetic.js';
+import { SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, H, sampleBaseline, sampleTrack, type Discrepancy } from './synthetic.js';
 
 /** N simulated runs per vignette in these tests; the lattice of the p-values is L = N + 1. */
 export const N_SIMS = 200;
@@ -43,18 +42,8 @@ export function sharedBaselineNull(rng: Rng, n = N_SIMS): () => number {
   };
 }
 
-const channels: ChannelSpec[] = [
-  { name: 'position', unit: 'm' },
-  { name: 'angle', unit: 'deg' },
-];
-const settings: AnalysisSettings = {
-  alpha: 0.05,
-  components: { kind: 'variance', fraction: 0.95 },
-  gridSize: 64,
-  segments: 25,
-  combination: 'fisher',
-  gapFactor: 6,
-};
+const channels = SYNTHETIC_CHANNELS;
+const settings = SYNTHETIC_SETTINGS;
 
 /**
  * Overall p-values of `size` live runs with a built discrepancy, each judged by the real engine
