@@ -245,6 +245,13 @@ export class PlEventOverview extends LitElement {
             ${v.adjustedPValue !== undefined
               ? html`<span class="combined" title="Holm-adjusted over the event's vignettes">Holm-adjusted ${pValue(v.adjustedPValue, 'final', alpha, { compact: true })}${v.verdict ? html` <span class="muted">(${v.verdict})</span>` : nothing}</span>`
               : nothing}
+            ${v.evidence
+              ? html`<span class="combined" data-evidence title=${v.evidence.advice.message}
+                  >evidence <span class="num">${v.evidence.current.toPrecision(3)}</span>${v.evidence.established
+                    ? html` <strong>▲ established</strong>`
+                    : html` <span class="muted">of ${Math.round(1 / alpha)}${v.evidence.advice.additionalRuns !== null ? html` · ~${v.evidence.advice.additionalRuns} more run${v.evidence.advice.additionalRuns === 1 ? '' : 's'} advised` : v.evidence.advice.futile ? html` · more runs unlikely to change this` : nothing}</span>`}</span
+                >`
+              : nothing}
           </div>
         </td>
       </tr>
