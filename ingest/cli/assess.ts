@@ -36,6 +36,14 @@ export async function assessFiles(inputs: AssessInputs, showProgress = true): Pr
   return { plan, report: buildReport(plan, event, { baseline: baseline.report, live: live.report }) };
 }
 
+/** "within" when every channel with a tolerance stays inside its widened band, else the channels beyond it. */
+function practicalCell(r: AssessmentReport['runs'][number]): string {
+  const rows = (r.practical ?? []).filter((d) => d.withinTolerance !== undefined);
+  if (rows.length === 0) return '—';
+  const beyond = rows.filter((d) => d.withinTolerance === false).map((d) => d.channel);
+  return beyond.length === 0 ? 'within' : `beyond: ${beyond.join(',')}`;
+}
+
 export function formatReport(plan: EventPlan, report: AssessmentReport): string {
   const channels = plan.channels;
   const rows = report.runs.map((r) => [
@@ -46,9 +54,11 @@ export function formatReport(plan: EventPlan, report: AssessmentReport): string 
     formatP(r.statistics?.residual.pValue),
     formatP(r.overall?.pValue),
     ...channels.map((c) => formatNumber(r.rmsDeviation?.[c.name], 1)),
+    practicalCell(r),
+    r.diagnosis ? `${r.diagnosis.kind}${r.diagnosis.timeShift !== undefined ? ` ${r.diagnosis.timeShift.toFixed(1)}s` : ''}` : '—',
     r.status === 'assessed' ? r.flags.join(',') : `not judged: ${r.reason ?? ''}`,
   ]);
-  const header = ['vignette', 'run', 'p(L2)', 'p(score)', 'p(resid)', 'p(overall)', ...channels.map((c) => `rms ${c.name} (${c.unit})`), 'flags'];
+  const header = ['vignette', 'run', 'p(L2)', 'p(score)', 'p(resid)', 'p(overall)', ...channels.map((c) => `rms ${c.name} (${c.unit})`), 'tolerance', 'kind', 'flags'];
   const out: string[] = [];
   out.push(`${report.plan.name}: ${report.runs.length} live runs in ${report.vignettes.length} vignettes`);
   out.push('');

@@ -85,6 +85,10 @@ function integer(value: string | boolean | undefined, name: string, fallback: nu
 
 async function run(argv: string[]): Promise<number> {
   const [command, ...rest] = argv;
+  if (rest.includes('--help') || rest.includes('-h')) {
+    process.stdout.write(`${USAGE}\n`);
+    return EXIT_OK;
+  }
   switch (command) {
     case 'assess': {
       const { values } = parse(rest, {

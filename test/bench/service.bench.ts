@@ -3,7 +3,9 @@
  *
  * The server runs as its own process (`plumbline serve`, built), on loopback, with a fresh journal.
  *   1. Throughput: one producer sends 200,000 points of 20 tracks in messages of 500 points, with up
- *      to 64 unacknowledged messages; points per second journaled and acknowledged.
+ *      to 64 unacknowledged messages; points per second journaled and acknowledged. Once for
+ *      simulated tracks (validation and journal only: a simulation farm streaming a baseline) and
+ *      once for live tracks (also the data-quality monitor of every point).
  *   2. Latency: 50 producers at 50 Hz (one point per message) for 20 s, one dashboard on /watch;
  *      for every run update the dashboard receives, the time since the newest point it reflects was
  *      sent. Prints the 50th, 95th and 99th percentiles.
@@ -43,7 +45,7 @@ function percentile(sorted: number[], q: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))];
 }
 
-async function throughput(url: string): Promise<void> {
+async function throughput(url: string, source: 'sim' | 'live', prefix: string): Promise<void> {
   const ws = await connect(url);
   const TRACKS = 20;
   const PER = 10_000;
@@ -60,20 +62,20 @@ async function throughput(url: string): Promise<void> {
     if (r.type === 'error') console.log('error', r);
     wake?.();
   });
-  for (let k = 0; k < TRACKS; k++) ws.send(JSON.stringify({ v: 1, type: 'open', id: `o${k}`, vignette: `V${k + 1}`, track: 'bulk', source: 'live', channels: ['x', 'y'] }));
+  for (let k = 0; k < TRACKS; k++) ws.send(JSON.stringify({ v: 1, type: 'open', id: `o${k}`, vignette: `V${k + 1}`, track: `${prefix}-bulk`, source, channels: ['x', 'y'] }));
   const start = performance.now();
   let id = 0;
   for (let k = 0; k < TRACKS; k++) {
     for (let s = 0; s < PER; s += BATCH) {
       while (inflight >= 64) await new Promise<void>((r) => (wake = r));
       const points = Array.from({ length: BATCH }, (_, i) => ({ seq: s + i + 1, t: (s + i) * 0.02, values: [1000 + s + i, 2000 - i] }));
-      ws.send(JSON.stringify({ v: 1, type: 'points', id: `p${id++}`, vignette: `V${k + 1}`, track: 'bulk', points }));
+      ws.send(JSON.stringify({ v: 1, type: 'points', id: `p${id++}`, vignette: `V${k + 1}`, track: `${prefix}-bulk`, points }));
       inflight++;
     }
   }
   while (acked < TRACKS * PER) await new Promise<void>((r) => (wake = r));
   const seconds = (performance.now() - start) / 1000;
-  console.log(`throughput: ${acked} points journaled and acknowledged in ${seconds.toFixed(2)} s = ${Math.round(acked / seconds).toLocaleString('en')} points/s`);
+  console.log(`throughput (${source} tracks): ${acked} points journaled and acknowledged in ${seconds.toFixed(2)} s = ${Math.round(acked / seconds).toLocaleString('en')} points/s`);
   ws.close();
 }
 
@@ -127,7 +129,8 @@ async function main(): Promise<void> {
   const port = 17000 + Math.floor(Math.random() * 1000);
   const stop = await startServer(port);
   try {
-    await throughput(`ws://127.0.0.1:${port}/feed`);
+    await throughput(`ws://127.0.0.1:${port}/feed`, 'sim', 's');
+    await throughput(`ws://127.0.0.1:${port}/feed`, 'live', 'l');
     await latency(`ws://127.0.0.1:${port}`);
   } finally {
     stop();

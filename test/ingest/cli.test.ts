@@ -79,3 +79,31 @@ describe('plumbline assess', () => {
     expect(doc.properties.runs.items.properties.statistics).toBeDefined();
   });
 });
+
+describe('plumbline report', () => {
+  it('writes a self-contained debrief from an assessment document, escaping text from outside', async () => {
+    const out = join(dir, 'result-for-debrief.json');
+    expect(cli('assess', '--plan', files.plan, '--baseline', files.baseline, '--live', files.live, '--out', out, '--quiet').status).toBe(0);
+    const doc = JSON.parse(readFileSync(out, 'utf8'));
+    doc.runs[0].track = '<script>alert(1)</script>';
+    writeFileSync(out, JSON.stringify(doc));
+    const html = join(dir, 'debrief.html');
+    const r = cli('report', '--in', out, '--out', html);
+    expect(r.status).toBe(0);
+    const page = readFileSync(html, 'utf8');
+    expect(page).toContain('&lt;script&gt;alert(1)&lt;/script&gt;');
+    expect(page).not.toContain('<script>');
+    expect(page).toContain('Statistical agreement is evidence, not accreditation.');
+    expect(page).toMatch(/Holm/);
+    expect(page).not.toMatch(/src="http|href="http/);
+    const bad = cli('report', '--in', files.plan);
+    expect(bad.status).toBe(2);
+    expect(bad.stderr).toMatch(/not an assessment document/);
+  });
+
+  it('--help on a command prints the usage and exits 0', () => {
+    const r = cli('demo', '--help');
+    expect(r.status).toBe(0);
+    expect(r.stdout).toMatch(/usage: plumbline/);
+  });
+});
