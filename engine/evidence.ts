@@ -334,11 +334,7 @@ function mixtureBettor(tables: readonly Float64Array[], resolution: number, weig
   return {
     resolution,
     value,
-    table: () => {
-      const out = new Float64Array(resolution + 1);
-      for (let k = 1; k <= resolution; k++) out[k] = value(k);
-      return out;
-    },
+    table: () => tabulate(value, resolution),
     observe: (k) => {
       let max = 0;
       for (let j = 0; j < tables.length; j++) {
@@ -404,6 +400,13 @@ function slopeAt(hull: Hull, k: number, L: number): number {
  * 0 unused). Non-increasing, mean over the cells 1 (the majorant ends at the CDF's value 1);
  * 0 above the largest observation. With no observations, the uniform density 1.
  */
+/** The bet on every lattice cell 1 … L (index 0 unused). */
+function tabulate(value: (k: number) => number, resolution: number): Float64Array {
+  const out = new Float64Array(resolution + 1);
+  for (let k = 1; k <= resolution; k++) out[k] = value(k);
+  return out;
+}
+
 export function grenanderOnLattice(counts: Float64Array, n: number, out: Float64Array = new Float64Array(counts.length)): Float64Array {
   const L = counts.length - 1;
   out.fill(0);
@@ -444,11 +447,7 @@ function adaptiveBettor(start: Float64Array, resolution: number, shrinkage: numb
   return {
     resolution,
     value,
-    table: () => {
-      const out = new Float64Array(resolution + 1);
-      for (let k = 1; k <= resolution; k++) out[k] = value(k);
-      return out;
-    },
+    table: () => tabulate(value, resolution),
     observe: (k) => {
       let lo = 0;
       let hi = cells.length;
