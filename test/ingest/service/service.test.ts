@@ -325,6 +325,25 @@ describe('security defaults', () => {
   });
 });
 
+describe('heartbeats', () => {
+  it('a peer that stops answering pings is terminated; one that answers stays', async () => {
+    const server = await startServer({ planPath: files.plan, journalPath: join(dir, 'hb.sqlite'), port: 0, inProcessCompute: true, limits: { heartbeatMs: 100 } });
+    try {
+      const watch = `${server.url.replace('http', 'ws')}/watch`;
+      // ws answers pings by itself unless told not to: this one plays a dead peer.
+      const dead = new WebSocket(watch, { autoPong: false });
+      const alive = new WebSocket(watch);
+      await Promise.all([dead, alive].map((ws) => new Promise((r) => ws.once('open', r))));
+      const closed = await new Promise<number>((r) => dead.once('close', (code) => r(code)));
+      expect(closed).toBe(1006); // terminated without a closing handshake
+      expect(alive.readyState).toBe(WebSocket.OPEN);
+      alive.close();
+    } finally {
+      await server.close();
+    }
+  });
+});
+
 describe('dashboard feed', () => {
   it('sends a snapshot, then per-run deltas conflated to the set rate whatever the input rate', async () => {
     const server = await startServer({ planPath: files.plan, baselinePath: files.baseline, journalPath: join(dir, 'i.sqlite'), port: 0, limits: { dashboardUpdatesPerSecond: 4 } });
