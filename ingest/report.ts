@@ -227,6 +227,21 @@ export function runReport(plan: EventPlan, run: RunOutcome): RunReport {
   };
 }
 
+export type Verdict = 'distinguishable' | 'not distinguishable' | 'not judged';
+
+/**
+ * Per-vignette verdicts: each judged vignette's combined p-value adjusted by Holm over the judged
+ * vignettes of the event, compared with alpha.
+ */
+export function vignetteVerdicts(vignettes: ReadonlyArray<{ readonly id: string; readonly combined?: Combined }>, alpha: number): Map<string, { adjustedPValue?: number; verdict: Verdict }> {
+  const judged = vignettes.filter((v) => v.combined);
+  const adjusted = holmAdjust(judged.map((v) => v.combined?.pValue ?? 1));
+  const out = new Map<string, { adjustedPValue?: number; verdict: Verdict }>();
+  for (const v of vignettes) out.set(v.id, { verdict: 'not judged' });
+  judged.forEach((v, i) => out.set(v.id, { adjustedPValue: adjusted[i], verdict: adjusted[i] <= alpha ? 'distinguishable' : 'not distinguishable' }));
+  return out;
+}
+
 export interface ReportVignette {
   readonly id: string;
   readonly horizon: number;
@@ -246,8 +261,7 @@ export function assembleReport(
 ): AssessmentReport {
   const s = plan.analysis;
   const comps = s.components.kind === 'variance' ? { varianceFraction: s.components.fraction } : { fixed: s.components.count };
-  const judged = vignettes.filter((v) => v.combined);
-  const adjusted = new Map(judged.map((v, i) => [v.id, holmAdjust(judged.map((x) => x.combined?.pValue ?? 1))[i]]));
+  const verdicts = vignetteVerdicts(vignettes, s.alpha);
   return {
     format: REPORT_FORMAT,
     version: REPORT_VERSION,
@@ -280,8 +294,7 @@ export function assembleReport(
           : undefined,
         runs: runs.filter((r) => r.vignette === v.id).length,
         combined: v.combined,
-        adjustedPValue: adjusted.get(v.id),
-        verdict: adjusted.has(v.id) ? ((adjusted.get(v.id) as number) <= s.alpha ? 'distinguishable' : 'not distinguishable') : 'not judged',
+        ...(verdicts.get(v.id) ?? { verdict: 'not judged' as const }),
       };
     }),
     runs: [...runs],

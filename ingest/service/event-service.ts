@@ -17,7 +17,7 @@ import type { RawTrack } from '../../engine/types.js';
 import { unwrapCircular } from '../../engine/unwrap.js';
 import { closeTrack as closeQuality, initialQuality, observePoint, type QualityFlag, type QualityState } from '../../engine/quality.js';
 import type { EventPlan } from '../plan.js';
-import { assembleReport, CAUTIONS, diagnosisRow, practicalRows, runReport, type AssessmentReport, type RunReport } from '../report.js';
+import { assembleReport, CAUTIONS, diagnosisRow, practicalRows, runReport, vignetteVerdicts, type AssessmentReport, type RunReport } from '../report.js';
 import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
 import type { AssessResult, EvidenceResult } from './compute.js';
@@ -674,14 +674,18 @@ export class EventService {
     const v = this.vignettes.get(id);
     const pv = this.plan.vignettes.find((x) => x.id === id);
     if (!v || !pv) return undefined;
-    const verdict = this.exportReport().vignettes.find((x) => x.id === id);
+    const reports = this.finalReports();
+    const verdict = vignetteVerdicts(
+      this.plan.vignettes.map((x) => ({ id: x.id, combined: this.combine(reports.filter((r) => r.vignette === x.id)) })),
+      this.plan.analysis.alpha,
+    ).get(id);
     return {
       id,
       label: pv.label,
       horizon: pv.horizon,
       condition: pv.condition,
       baseline: { status: v.status, sims: v.sims, components: v.summary?.components, varianceExplained: v.summary?.varianceExplained, reason: v.reason },
-      combined: this.combinedView(this.combine(this.finalReports().filter((r) => r.vignette === id))),
+      combined: this.combinedView(this.combine(reports.filter((r) => r.vignette === id))),
       evidence: this.evidence?.streams.find((x) => x.vignette === id && x.runs > 0),
       adjustedPValue: verdict?.adjustedPValue,
       verdict: verdict?.verdict ?? 'not judged',
