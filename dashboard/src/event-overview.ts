@@ -147,21 +147,6 @@ export class PlEventOverview extends LitElement {
       .st-done {
         color: var(--pl-ink);
       }
-      .bar {
-        display: inline-block;
-        width: 44px;
-        height: 5px;
-        border: 1px solid currentColor;
-        border-radius: 2px;
-        vertical-align: middle;
-        margin-left: 4px;
-        overflow: hidden;
-      }
-      .bar > span {
-        display: block;
-        height: 100%;
-        background: currentColor;
-      }
       .notes {
         white-space: nowrap;
         color: var(--pl-muted);

@@ -120,19 +120,8 @@ export class PlRunDetail extends LitElement {
         color: var(--pl-ok);
       }
       .bar {
-        display: inline-block;
-        width: 60px;
-        height: 6px;
-        border: 1px solid currentColor;
-        border-radius: 2px;
-        vertical-align: middle;
-        margin-left: 4px;
-        overflow: hidden;
-      }
-      .bar > span {
-        display: block;
-        height: 100%;
-        background: currentColor;
+        --pl-bar-width: 60px;
+        --pl-bar-height: 6px;
       }
       .warn {
         color: #7a3500;

@@ -134,6 +134,22 @@ export const shared = css`
     background: #fdf3ea;
     color: #7a3500;
   }
+  /* A small progress bar: the filled span's width is the fraction done. */
+  .bar {
+    display: inline-block;
+    width: var(--pl-bar-width, 44px);
+    height: var(--pl-bar-height, 5px);
+    border: 1px solid currentColor;
+    border-radius: 2px;
+    vertical-align: middle;
+    margin-left: 4px;
+    overflow: hidden;
+  }
+  .bar > span {
+    display: block;
+    height: 100%;
+    background: currentColor;
+  }
   .chip.ok {
     border-color: #9fc3dd;
     background: #eef5fa;

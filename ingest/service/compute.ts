@@ -7,7 +7,7 @@ import { assessRun, baselineEnvelope, buildBaseline, curvesForWindow, NotAssessa
 import { adviseEvent, type RunAdvice } from '../../engine/advisor.js';
 import type { Diagnosis } from '../../engine/diagnosis.js';
 import { DEFAULT_STRATEGY, eventEvidence, type StreamRun } from '../../engine/evidence.js';
-import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary } from '../../engine/event.js';
+import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary, type RunOutcome } from '../../engine/event.js';
 import { practicalDifference, type ChannelDifference } from '../../engine/practical.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
 import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
@@ -37,17 +37,11 @@ export interface FitResult {
 /** How many simulated curves a dashboard draws faintly behind the bands. */
 export const TEXTURE_CURVES = 8;
 
-export interface AssessResult {
-  readonly vignette: string;
-  readonly track: string;
+/** A run's judgement (the same fields as the batch path's RunOutcome) plus what a run in flight needs. */
+export interface AssessResult extends Omit<RunOutcome, 'error'> {
   readonly mode: 'final' | 'provisional';
   /** Track time up to which the run was judged (provisional), or its last sample (final). */
   readonly upTo: number;
-  readonly samples: number;
-  readonly assessment?: RunAssessment;
-  readonly rms?: number[];
-  readonly practical?: ChannelDifference[];
-  readonly diagnosis?: Diagnosis;
   readonly projection?: Projection;
   /** Scores of the simulated runs and of this run on the first two components of the shared fit. */
   readonly scoreCloud?: { sims: [number[], number[]]; run: [number, number]; eigenvalues: [number, number] };

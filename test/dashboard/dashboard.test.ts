@@ -22,7 +22,7 @@ import { startServer, type RunningServer } from '../../ingest/service/server.js'
 import type { EventView } from '../../ingest/service/view.js';
 import { readTracks } from '../../ingest/tracks-reader.js';
 import { formatP } from '../../dashboard/src/format.js';
-import { ARTIFACTS, DIST, ensureDashboardBuilt, launchChromium, watchPage, type PageWatch } from './support/browser.js';
+import { ARTIFACTS, DIST, ensureDashboardBuilt, launchChromium, quantile, recordFrames, watchPage, type Frames, type PageWatch } from './support/browser.js';
 
 const XSS_VIGNETTE = 'S1-L3';
 const XSS_LABEL = 'sea state low, lane 3 <img src=x onerror="window.__plumblineXss=1"><b>bold?</b>';
@@ -42,31 +42,6 @@ const run = (key: string) => page.locator(`tr.run[data-run="${key}"]`);
 const state = async (): Promise<EventView> => (await fetch(`${server.url}/api/state`)).json() as Promise<EventView>;
 const selectedKey = () => page.locator(`tr.run[aria-selected="true"]`).getAttribute('data-run');
 
-/** Frame recorder installed before the page's scripts: rAF intervals and long animation frames. */
-function recordFrames(): void {
-  const w = window as unknown as { __frames: { raf: number[]; loaf: number[] } };
-  w.__frames = { raf: [], loaf: [] };
-  let last = performance.now();
-  const tick = (t: number) => {
-    w.__frames.raf.push(t - last);
-    if (w.__frames.raf.length > 5000) w.__frames.raf.shift();
-    last = t;
-    requestAnimationFrame(tick);
-  };
-  requestAnimationFrame(tick);
-  try {
-    new PerformanceObserver((list) => {
-      for (const e of list.getEntries()) w.__frames.loaf.push(e.duration);
-    }).observe({ type: 'long-animation-frame', buffered: false });
-  } catch {
-    // not supported: only rAF intervals
-  }
-}
-
-const quantile = (xs: number[], q: number) => {
-  const s = [...xs].sort((a, b) => a - b);
-  return s.length ? s[Math.min(s.length - 1, Math.floor(q * s.length))] : Number.NaN;
-};
 
 beforeAll(async () => {
   figures.build = ensureDashboardBuilt();
@@ -132,12 +107,12 @@ describe('the dashboard against a live event', () => {
     await page.screenshot({ path: join(ARTIFACTS, 'dashboard-in-flight.png') });
     // Frame times over 4 s with four runs in flight.
     await page.evaluate(() => {
-      const w = window as unknown as { __frames: { raf: number[]; loaf: number[] } };
+      const w = window as unknown as { __frames: Frames };
       w.__frames.raf.length = 0;
       w.__frames.loaf.length = 0;
     });
     await page.waitForTimeout(4000);
-    const frames = await page.evaluate(() => (window as unknown as { __frames: { raf: number[]; loaf: number[] } }).__frames);
+    const frames = await page.evaluate(() => (window as unknown as { __frames: Frames }).__frames);
     figures.framesWhileInFlight = {
       frames: frames.raf.length,
       intervalMs: { p50: quantile(frames.raf, 0.5), p95: quantile(frames.raf, 0.95), max: Math.max(...frames.raf) },

@@ -11,7 +11,7 @@ import { mkdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import type { Browser, CDPSession, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { ARTIFACTS, DIST, ensureDashboardBuilt, launchChromium, watchPage, type PageWatch } from './support/browser.js';
+import { ARTIFACTS, DIST, ensureDashboardBuilt, launchChromium, quantile, recordFrames, watchPage, type Frames, type PageWatch } from './support/browser.js';
 import { startSyntheticServer, type SyntheticServer } from './support/synthetic-watch.js';
 
 const RUNS = 20;
@@ -23,35 +23,6 @@ let cdp: CDPSession;
 let watch: PageWatch;
 const figures: Record<string, unknown> = {};
 
-interface Frames {
-  raf: number[];
-  loaf: number[];
-}
-
-function recordFrames(): void {
-  const w = window as unknown as { __frames: Frames };
-  w.__frames = { raf: [], loaf: [] };
-  let last = performance.now();
-  const tick = (t: number) => {
-    w.__frames.raf.push(t - last);
-    if (w.__frames.raf.length > 5000) w.__frames.raf.shift();
-    last = t;
-    requestAnimationFrame(tick);
-  };
-  requestAnimationFrame(tick);
-  try {
-    new PerformanceObserver((list) => {
-      for (const e of list.getEntries()) w.__frames.loaf.push(e.duration);
-    }).observe({ type: 'long-animation-frame', buffered: false });
-  } catch {
-    // not supported: only rAF intervals
-  }
-}
-
-const quantile = (xs: number[], q: number) => {
-  const s = [...xs].sort((a, b) => a - b);
-  return s.length ? s[Math.min(s.length - 1, Math.floor(q * s.length))] : Number.NaN;
-};
 
 async function metrics(): Promise<{ heapMB: number; nodes: number; listeners: number; canvases: number }> {
   await cdp.send('HeapProfiler.collectGarbage');

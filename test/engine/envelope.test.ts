@@ -2,22 +2,11 @@ import { describe, expect, it } from 'vitest';
 import { buildBaseline, baselineEnvelope, smoothTrack } from '../../engine/assess.js';
 import { quantileSorted, simulatedEnvelope } from '../../engine/envelope.js';
 import { createRng } from '../../engine/rng.js';
-import type { AnalysisSettings } from '../../engine/types.js';
 import { binomialInterval, expectClose } from '../support/compare.js';
-import { H, sampleBaseline, sampleTrack } from '../support/synthetic.js';
+import { H, SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, sampleBaseline, sampleTrack } from '../support/synthetic.js';
 
-const settings: AnalysisSettings = {
-  alpha: 0.05,
-  components: { kind: 'variance', fraction: 0.95 },
-  gridSize: 64,
-  segments: 25,
-  combination: 'fisher',
-  gapFactor: 6,
-};
-const channels = [
-  { name: 'position', unit: 'm' },
-  { name: 'angle', unit: 'deg' },
-];
+const settings = SYNTHETIC_SETTINGS;
+const channels = SYNTHETIC_CHANNELS;
 
 describe('quantiles', () => {
   it('follow Hyndman–Fan definition 7 (numpy.quantile default): worked values', () => {

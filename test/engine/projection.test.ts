@@ -3,12 +3,11 @@ import { buildBaseline, smoothTrack } from '../../engine/assess.js';
 import { fullWindow, windowWeights } from '../../engine/grid.js';
 import { fitProjectionModel, projectRemainder } from '../../engine/projection.js';
 import { createRng } from '../../engine/rng.js';
-import type { AnalysisSettings } from '../../engine/types.js';
 import { expectClose } from '../support/compare.js';
-import { H, sampleBaseline, sampleTrack } from '../support/synthetic.js';
+import { H, SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, sampleBaseline, sampleTrack } from '../support/synthetic.js';
 
-const settings: AnalysisSettings = { alpha: 0.05, components: { kind: 'variance', fraction: 0.95 }, gridSize: 64, segments: 25, combination: 'fisher', gapFactor: 6 };
-const channels = [{ name: 'position', unit: 'm' }, { name: 'angle', unit: 'deg' }];
+const settings = SYNTHETIC_SETTINGS;
+const channels = SYNTHETIC_CHANNELS;
 
 describe('projection of the rest of a track (conditional expectation under the baseline)', () => {
   const baseline = buildBaseline('V', H, channels, sampleBaseline(createRng(61), 300), settings);

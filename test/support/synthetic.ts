@@ -6,7 +6,7 @@
  * expansion), observed at irregular times (nominal interval dtNominal, uniform jitter ±20 %, 3 % of
  * samples missed) with Gaussian noise. Alternatives add a known discrepancy to the live curve.
  */
-import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
+import { DEFAULT_ANALYSIS, type AnalysisSettings, type ChannelSpec, type RawTrack } from '../../engine/types.js';
 import type { Rng } from '../../engine/rng.js';
 
 export const H = 100;
@@ -18,14 +18,7 @@ export const SYNTHETIC_CHANNELS: readonly ChannelSpec[] = [
 ];
 
 /** Analysis settings of the engine tests: the plan defaults with a coarser grid for speed. */
-export const SYNTHETIC_SETTINGS: AnalysisSettings = {
-  alpha: 0.05,
-  components: { kind: 'variance', fraction: 0.95 },
-  gridSize: 64,
-  segments: 25,
-  combination: 'fisher',
-  gapFactor: 6,
-};
+export const SYNTHETIC_SETTINGS: AnalysisSettings = { ...DEFAULT_ANALYSIS, gridSize: 64, segments: 25 };
 
 export type Discrepancy =
   | { kind: 'none' }

@@ -130,3 +130,39 @@ export function watchPage(page: Page, origin: string): PageWatch {
   });
   return watch;
 }
+
+/** Frame timings the page records: requestAnimationFrame intervals and long animation frames (ms). */
+export interface Frames {
+  raf: number[];
+  loaf: number[];
+}
+
+/**
+ * Frame recorder, installed with page.addInitScript before the page's own scripts (so it must be
+ * self-contained: Playwright sends its source to the page).
+ */
+export function recordFrames(): void {
+  const w = window as unknown as { __frames: Frames };
+  w.__frames = { raf: [], loaf: [] };
+  let last = performance.now();
+  const tick = (t: number) => {
+    w.__frames.raf.push(t - last);
+    if (w.__frames.raf.length > 5000) w.__frames.raf.shift();
+    last = t;
+    requestAnimationFrame(tick);
+  };
+  requestAnimationFrame(tick);
+  try {
+    new PerformanceObserver((list) => {
+      for (const e of list.getEntries()) w.__frames.loaf.push(e.duration);
+    }).observe({ type: 'long-animation-frame', buffered: false });
+  } catch {
+    // not supported: only rAF intervals
+  }
+}
+
+/** The q-quantile of a sample (nearest rank). */
+export function quantile(xs: readonly number[], q: number): number {
+  const s = [...xs].sort((a, b) => a - b);
+  return s.length ? s[Math.min(s.length - 1, Math.floor(q * s.length))] : Number.NaN;
+}
