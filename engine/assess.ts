@@ -3,7 +3,7 @@
  * built from the routines of this folder.
  *
  *   raw track ──restrict to the run's observed window──▶ P-spline per channel (./pspline.ts)
- *             ──▶ curve on the common grid ──▶ full-conformal FPCA statistics (./calibrate.ts)
+ *             ──▶ curve on the common grid ──▶ leave-one-out FPCA statistics (./calibrate.ts)
  *
  * Like with like: a run with a dropout, a late start or an early end is judged only on the part of
  * [0, horizon] it observed (./grid.ts observedWindow), and every simulated track is cut to that
@@ -12,7 +12,8 @@
  * baseline's cached full-window curves.
  */
 import { applyBasis, evaluateBasis, splineBasis, type BasisEvaluation, type SplineBasis } from './bspline.js';
-import { conformalAssess, type ConformalResult } from './calibrate.js';
+import { buildReference, conformalAssess, DEFAULT_TIE_SEED, type CalibrationReference, type ConformalResult } from './calibrate.js';
+import { seedFor } from './rng.js';
 import { simulatedEnvelope, type ChannelEnvelope } from './envelope.js';
 import { covers, fullWindow, inWindow, observedWindow, uniformGrid, windowKey, windowWeights, type Grid, type TrackWindow } from './grid.js';
 import { differencePenaltyBand, MIN_SAMPLES, smoothGcv, type PSplineFit } from './pspline.js';
@@ -148,12 +149,12 @@ export class NotAssessableError extends Error {
 }
 
 export interface AssessOptions {
-  /** Seed of the randomized component solver (any fixed value: results are reproducible). */
-  readonly seed?: number;
   /** Use this window instead of the run's own (e.g. to judge a prefix). */
   readonly window?: TrackWindow;
   /** Curves for the window, when the caller has them cached. */
   readonly windowCurves?: readonly Float64Array[];
+  /** The window's calibration reference built from `windowCurves`, when the caller has it cached. */
+  readonly reference?: CalibrationReference;
 }
 
 /** Judge one run against its vignette's baseline (see the module comment). */
@@ -180,8 +181,11 @@ export function assessRun(baseline: Baseline, run: RawTrack, options: AssessOpti
   if (cut.t.length < MIN_SAMPLES) throw new NotAssessableError(`run ${run.track} has ${cut.t.length} samples in its window`);
   const smoothed = smoothTrack(cut, baseline.basis, baseline.gridEval, baseline.penalty);
   if (cut.t.length < 3 * baseline.basis.size) flags.push('few-samples');
+  const seed = settings.seed ?? DEFAULT_TIE_SEED;
+  const reference = options.reference ?? buildReference(sims, weightsOnGrid, baseline.channels.length, settings.components, seed);
   const result = conformalAssess(sims, smoothed.curve, weightsOnGrid, baseline.channels.length, settings.components, {
-    seed: options.seed,
+    reference,
+    tieSeed: seedFor(seed, run.vignette, run.track),
   });
   return {
     vignette: run.vignette,

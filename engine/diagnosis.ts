@@ -64,7 +64,8 @@
  */
 import { solve, Matrix } from 'ml-matrix';
 import { curvesForWindow, restrictTrack, type Baseline, type RunAssessment } from './assess.js';
-import { conformalAssess, type ConformalResult } from './calibrate.js';
+import { conformalAssess, type CalibrationReference, type ConformalResult } from './calibrate.js';
+import { projectCurve } from './fpca.js';
 import { windowWeights, type Grid } from './grid.js';
 import type { ComponentRule, RawTrack } from './types.js';
 
@@ -98,6 +99,8 @@ export interface DiagnosisOptions {
   readonly maxShift?: number;
   /** Seed of the component solver for the reassessments (default: the engine's). */
   readonly seed?: number;
+  /** The window's calibration reference (./calibrate.ts buildReference), reused by reassessments on the same window. */
+  readonly reference?: CalibrationReference;
 }
 
 export interface StatisticEvidence {
@@ -309,7 +312,8 @@ function levelFits(result: ConformalResult, curves: readonly Float64Array[], C: 
     }
   }
   return curves.map((x, i) => {
-    const xi = model.scores[i];
+    // The model's own curves have their scores; the live curve (beyond them) is projected.
+    const xi = model.scores[i] ?? projectCurve(model, x).scores;
     const oneE = new Float64Array(C);
     let ee = 0;
     for (let d = 0; d < D; d++) {
@@ -377,7 +381,7 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
   if (sims.length < 3) throw new RangeError(`diagnose: need at least 3 simulated curves, got ${sims.length}`);
   if (input.noise.run.length !== C) throw new RangeError(`diagnose: noise of the run has ${input.noise.run.length} channels, expected ${C}`);
   const reassess = (curve: Float64Array, weights: Float64Array): number =>
-    conformalAssess(sims, curve, weights, C, rule, { seed: options.seed }).pValues.overall;
+    conformalAssess(sims, curve, weights, C, rule, { seed: options.seed, reference: weights === input.gridWeights ? options.reference : undefined }).pValues.overall;
 
   const p = result.pValues;
   const zL2 = robustLogZ(result.live.l2, result.reference.l2);

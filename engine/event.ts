@@ -1,16 +1,16 @@
 /**
- * A whole event: per-vignette baselines, every live run judged against its vignette, and the
- * per-run overall p-values combined across runs. Used alike by the batch command and the live
+ * A whole event: per-vignette baselines, every live run judged against its vignette, and each
+ * statistic's p-values combined across runs with their calibrated minimum (./combine-statistics.ts). Used alike by the batch command and the live
  * service, so both give the same numbers.
  */
 import { assessRun, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from './assess.js';
 import { diagnoseRun, type Diagnosis } from './diagnosis.js';
 import { observedWindow } from './grid.js';
 import { practicalDifference, type ChannelDifference } from './practical.js';
-import { channelScales, joinedWeights } from './calibrate.js';
-import { combinePValues, type Combined } from './combine.js';
+import { buildReference, channelScales, DEFAULT_TIE_SEED, joinedWeights, type CalibrationReference } from './calibrate.js';
+import { combineStatistics, type RunPValues, type StatisticsCombined } from './combine-statistics.js';
 import { fitFpca } from './fpca.js';
-import { fullWindow, windowWeights, type TrackWindow } from './grid.js';
+import { fullWindow, windowKey, windowWeights, type TrackWindow } from './grid.js';
 import type { AnalysisSettings, ChannelSpec, RawTrack } from './types.js';
 
 export interface VignetteSpec {
@@ -89,15 +89,15 @@ export interface VignetteOutcome {
   readonly horizon: number;
   readonly summary?: ModelSummary;
   readonly error?: string;
-  /** Combination of this vignette's run p-values (when it has judged runs). */
-  readonly combined?: Combined;
+  /** Each statistic combined across this vignette's runs, and their calibrated minimum (when it has judged runs). */
+  readonly combined?: StatisticsCombined;
 }
 
 export interface EventAssessment {
   readonly vignettes: VignetteOutcome[];
   readonly runs: RunOutcome[];
-  /** Combination of every judged run's overall p-value. */
-  readonly combined?: Combined;
+  /** Each statistic combined across every judged run, and their calibrated minimum. */
+  readonly combined?: StatisticsCombined;
 }
 
 export type EventProgress = (stage: 'baseline' | 'runs', vignette: string, done: number, total: number) => void;
@@ -113,12 +113,22 @@ export function windowAndCurves(baseline: Baseline, run: RawTrack): { window: Tr
  * for a run that stands out at the plan's alpha, the kind of discrepancy. The batch command and the
  * live service both call this, so they report the same numbers.
  */
-export function judgeRun(baseline: Baseline, run: RawTrack, simMean: Float64Array, prepared?: { window: TrackWindow; curves: readonly Float64Array[] }): RunOutcome {
+export function judgeRun(
+  baseline: Baseline,
+  run: RawTrack,
+  simMean: Float64Array,
+  prepared?: { window: TrackWindow; curves: readonly Float64Array[]; reference?: CalibrationReference },
+): RunOutcome {
   const { window, curves } = prepared ?? windowAndCurves(baseline, run);
-  const a = assessRun(baseline, run, { window, windowCurves: curves });
+  const settings = baseline.settings;
+  // One calibration reference for the judgement and the diagnosis's reassessments on this window.
+  const reference =
+    prepared?.reference ??
+    (curves.length >= 19 ? buildReference(curves, windowWeights(baseline.grid, window), baseline.channels.length, settings.components, settings.seed ?? DEFAULT_TIE_SEED) : undefined);
+  const a = assessRun(baseline, run, { window, windowCurves: curves, reference });
   const practical = practicalDifference(a.curve, a.active, curves, baseline.grid, baseline.channels);
   const standsOut = a.result.pValues.overall <= baseline.settings.alpha;
-  const diagnosis = standsOut ? diagnoseRun(baseline, run, a, { alpha: baseline.settings.alpha, windowCurves: curves }) : undefined;
+  const diagnosis = standsOut ? diagnoseRun(baseline, run, a, { alpha: baseline.settings.alpha, windowCurves: curves, reference }) : undefined;
   return { vignette: run.vignette, track: run.track, samples: run.t.length, assessment: a, rms: rmsDeviation(a, baseline, simMean), practical, diagnosis };
 }
 
@@ -153,16 +163,30 @@ export function assessEvent(
       }
     }
     const simMean = baseline ? meanCurve(baseline.curves) : undefined;
-    const pvals: number[] = [];
+    const pvals: RunPValues[] = [];
+    // Runs judged on the same window share its simulated curves and their calibration reference.
+    const windows = new Map<string, { window: TrackWindow; curves: Float64Array[]; reference?: CalibrationReference }>();
+    const prepare = (b: Baseline, run: RawTrack) => {
+      const window = observedWindow(run.t, b.horizon, b.settings.gapFactor, b.grid.step);
+      const key = windowKey(window);
+      let hit = windows.get(key);
+      if (!hit) {
+        const curves = curvesForWindow(b, window).curves;
+        const reference = curves.length >= 19 ? buildReference(curves, windowWeights(b.grid, window), b.channels.length, b.settings.components, b.settings.seed ?? DEFAULT_TIE_SEED) : undefined;
+        hit = { window, curves, reference };
+        windows.set(key, hit);
+      }
+      return { ...hit, window };
+    };
     vLive.forEach((run, i) => {
       if (!baseline || !simMean) {
         runs.push({ vignette: v.id, track: run.track, samples: run.t.length, error: error ?? `vignette ${v.id} has no simulated tracks` });
         return;
       }
       try {
-        const outcome = judgeRun(baseline, run, simMean);
+        const outcome = judgeRun(baseline, run, simMean, prepare(baseline, run));
         runs.push(outcome);
-        pvals.push(outcome.assessment?.result.pValues.overall ?? 1);
+        if (outcome.assessment) pvals.push(runPValues(outcome.assessment));
       } catch (e) {
         if (!(e instanceof NotAssessableError)) throw e;
         runs.push({ vignette: v.id, track: run.track, samples: run.t.length, error: e.message });
@@ -174,9 +198,18 @@ export function assessEvent(
       horizon: v.horizon,
       summary,
       error,
-      combined: pvals.length > 0 ? combinePValues(pvals, settings.combination) : undefined,
+      combined: pvals.length > 0 ? combineStatistics(pvals, settings.combination, settings.seed ?? 1, v.id) : undefined,
     });
   }
-  const all = runs.flatMap((r) => (r.assessment ? [r.assessment.result.pValues.overall] : []));
-  return { vignettes: vOut, runs, combined: all.length > 0 ? combinePValues(all, settings.combination) : undefined };
+  const all = runs.flatMap((r) => (r.assessment ? [runPValues(r.assessment)] : []));
+  return { vignettes: vOut, runs, combined: all.length > 0 ? combineStatistics(all, settings.combination, settings.seed ?? 1, EVENT_LABEL) : undefined };
+}
+
+/** The label of the event-wide family in the seed of the combination's draws (vignettes use their id). */
+export const EVENT_LABEL = '\u0000event';
+
+/** A judged run's three p-values and its window's null triples, for ./combine-statistics.ts. */
+export function runPValues(a: RunAssessment): RunPValues {
+  const { pValues, nullPValues } = a.result;
+  return { pValues: { l2: pValues.l2, score: pValues.score, residual: pValues.residual }, nullPValues };
 }

@@ -134,15 +134,24 @@ function exactSpectrum(rows: Float64Array[], dim: number): Spectrum {
     }
     return { values, vectors, scores };
   }
-  const c = new Matrix(dim, dim);
+  // YᵀY accumulated row by row in flat upper-triangular storage, then mirrored.
+  const acc = new Float64Array(dim * dim);
   for (const y of rows) {
     for (let a = 0; a < dim; a++) {
       const ya = y[a];
       if (ya === 0) continue;
-      for (let b = a; b < dim; b++) c.set(a, b, c.get(a, b) + ya * y[b]);
+      const base = a * dim;
+      for (let b = a; b < dim; b++) acc[base + b] += ya * y[b];
     }
   }
-  for (let a = 0; a < dim; a++) for (let b = a; b < dim; b++) c.set(b, a, c.get(a, b));
+  const c = new Matrix(dim, dim);
+  for (let a = 0; a < dim; a++) {
+    for (let b = a; b < dim; b++) {
+      const v = acc[a * dim + b];
+      c.set(a, b, v);
+      c.set(b, a, v);
+    }
+  }
   const { values: mu, vectors } = symmetricEigen(c);
   const values = Float64Array.from(mu, (m) => Math.max(m, 0) / (N - 1));
   const scores = vectors.map((v) => Float64Array.from(rows, (y) => dot(y, v)));
@@ -313,6 +322,22 @@ export function fitFpca(curves: readonly Float64Array[], weights: Float64Array, 
     }
   }
 
+  return modelFromSpectrum(spectrum, { mean, active, weights, total, n: N }, K, solver);
+}
+
+/**
+ * The model of the K leading components of a spectrum: eigenfunctions φ_k = v_k/√w on the grid
+ * (0 outside the window), with the sign convention ∫φ ≥ 0 (largest entry positive when the
+ * integral vanishes), and the curves' scores.
+ */
+function modelFromSpectrum(
+  spectrum: Spectrum,
+  frame: { mean: Float64Array; active: Int32Array; weights: Float64Array; total: number; n: number },
+  K: number,
+  solver: 'exact' | 'randomized',
+): FpcaModel {
+  const { mean, active, weights, total, n: N } = frame;
+  const dim = active.length;
   const D = weights.length;
   const eigenfunctions: Float64Array[] = [];
   const scoreCols: Float64Array[] = [];
@@ -327,7 +352,6 @@ export function fitFpca(curves: readonly Float64Array[], weights: Float64Array, 
       integral += weights[d] * phi[d];
       if (Math.abs(v[j]) > Math.abs(biggest)) biggest = v[j];
     }
-    // Sign convention: ∫φ ≥ 0 (largest entry positive when the integral vanishes).
     const flip = Math.abs(integral) > 1e-12 ? integral < 0 : biggest < 0;
     const sc = Float64Array.from(spectrum.scores[k]);
     if (flip) {
@@ -352,6 +376,39 @@ export function fitFpca(curves: readonly Float64Array[], weights: Float64Array, 
     varianceExplained: total > 0 ? kept / total : 1,
     solver,
   };
+}
+
+/**
+ * The whole spectrum of the curves' covariance (every eigenvalue, and every curve's score on every
+ * component), by the exact solver. The leave-one-out statistics (./loo.ts) need all of it.
+ */
+export interface FullSpectrum {
+  /** The model of the leading components under `rule` (exact solver). */
+  readonly model: FpcaModel;
+  /** Eigenvalues of the covariance (divisor N − 1), descending, every one the data have (min(N, dim)). */
+  readonly values: Float64Array;
+  /** scores[k][i]: curve i's score on component k, for every component (signs as in `model`). */
+  readonly scores: readonly Float64Array[];
+  /** ‖x_i − m‖² in the weighted L2 norm, per curve. */
+  readonly normsSq: Float64Array;
+}
+
+export function fitFpcaFull(curves: readonly Float64Array[], weights: Float64Array, rule: ComponentRule, options: { maxComponents?: number } = {}): FullSpectrum {
+  const N = curves.length;
+  if (N < 3) throw new RangeError(`fitFpcaFull: need at least 3 curves, got ${N}`);
+  const { mean, rows, active } = centredWeighted(curves, weights);
+  const dim = active.length;
+  if (dim === 0) throw new RangeError('fitFpcaFull: no grid point has positive weight');
+  const normsSq = Float64Array.from(rows, (y) => dot(y, y));
+  let total = 0;
+  for (const r of normsSq) total += r;
+  total /= N - 1;
+  const cap = Math.min(options.maxComponents ?? N - 2, N - 2, dim);
+  const spectrum = exactSpectrum(rows, dim);
+  const K = componentCount(spectrum.values, total, rule, cap);
+  const model = modelFromSpectrum(spectrum, { mean, active, weights, total, n: N }, K, 'exact');
+  const scores = spectrum.scores.map((s, k) => (k < K ? Float64Array.from(model.scores, (r) => r[k]) : s));
+  return { model, values: spectrum.values, scores, normsSq };
 }
 
 /** Squared L2 distance, component scores, score distance and residual of a curve under a model. */

@@ -76,3 +76,21 @@ export function createRng(seed: number): Rng {
 function rotl(x: number, k: number): number {
   return ((x << k) | (x >>> (32 - k))) >>> 0;
 }
+
+/**
+ * A 32-bit seed from a base seed and labels (FNV-1a over the UTF-16 code units, Fowler–Noll–Vo;
+ * IETF draft-eastlake-fnv, common practice), so that a stream can be named by what it is for
+ * (e.g. a vignette and a run) and be the same in every process that names it alike.
+ */
+export function seedFor(base: number, ...labels: readonly string[]): number {
+  let h = 0x811c9dc5 ^ (Math.floor(base) >>> 0);
+  const mix = (code: number): void => {
+    h ^= code & 0xffff;
+    h = Math.imul(h, 0x01000193) >>> 0;
+  };
+  for (const label of labels) {
+    for (let i = 0; i < label.length; i++) mix(label.charCodeAt(i));
+    mix(0x1f);
+  }
+  return h >>> 0;
+}

@@ -49,6 +49,11 @@ export interface AnalysisSettings {
    * interval (and longer than two grid steps) is a dropout: the grid points inside it are not judged.
    */
   readonly gapFactor: number;
+  /**
+   * Seed of the tie-breaking draws of the smoothed p-values and of the Monte Carlo calibration of
+   * combined evidence (engine/calibrate.ts, engine/event.ts): the same plan gives the same results.
+   */
+  readonly seed?: number;
 }
 
 export const DEFAULT_ANALYSIS: AnalysisSettings = {
@@ -58,4 +63,5 @@ export const DEFAULT_ANALYSIS: AnalysisSettings = {
   segments: 40,
   combination: 'fisher',
   gapFactor: 6,
+  seed: 1,
 };

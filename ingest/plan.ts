@@ -111,6 +111,12 @@ const analysisSchema = z.strictObject({
     })
     .default(DEFAULT_ANALYSIS.combination),
   gapFactor: z.number().gt(1, { error: 'must be > 1' }).default(DEFAULT_ANALYSIS.gapFactor),
+  seed: z
+    .int({ error: 'must be an integer' })
+    .min(0, { error: 'must be an integer in [0, 4294967295]' })
+    .max(4294967295, { error: 'must be an integer in [0, 4294967295]' })
+    .default(DEFAULT_ANALYSIS.seed ?? 1)
+    .describe('seed of the tie-breaking draws and Monte Carlo calibrations: the same plan and data give the same p-values'),
 });
 
 /** Report the second and later occurrences of a key in a list as `[index, field]` issues. */
@@ -177,6 +183,7 @@ function toEventPlan(doc: z.output<typeof planSchema>): EventPlan {
       segments: a.segments,
       combination: a.combination,
       gapFactor: a.gapFactor,
+      seed: a.seed,
     },
   };
 }

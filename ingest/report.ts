@@ -5,6 +5,7 @@
  */
 import { z } from 'zod';
 import { holmAdjust, type Combined } from '../engine/combine.js';
+import type { StatisticsCombined } from '../engine/combine-statistics.js';
 import type { Diagnosis } from '../engine/diagnosis.js';
 import type { ChannelDifference } from '../engine/practical.js';
 import type { EventAssessment, ModelSummary, RunOutcome } from '../engine/event.js';
@@ -22,15 +23,26 @@ export const CAUTIONS: readonly string[] = [
 
 const statistic = z.object({
   value: z.number().describe('distance in scaled units (each channel divided by its scale)'),
-  pValue: z.number().gt(0).lte(1).describe('Monte Carlo rank p-value (1 + #{sim >= live}) / (N + 1), full-conformal'),
+  pValue: z.number().gt(0).lte(1).describe('smoothed Monte Carlo rank p-value (#{sim > live} + U·(1 + #{sim = live})) / (N + 1), U uniform on (0, 1] from the seeded generator; every simulated run judged by the model of the others'),
 });
 
-const combined = z.object({
+const combinedOne = z.object({
   method: z.enum(['fisher', 'stouffer', 'tippett', 'cauchy']),
   statistic: z.number(),
   pValue: z.number().gte(0).lte(1),
   count: z.number().int().positive().describe('number of runs combined'),
 });
+
+const combined = combinedOne
+  .extend({
+    statistic: z.number().describe('the smallest of the three per-statistic combined p-values'),
+    pValue: z.number().gte(0).lte(1).describe('that minimum calibrated by Monte Carlo with the simulated runs as pseudo-live runs (valid for the three statistics together)'),
+    byStatistic: z.object({ l2: combinedOne, score: combinedOne, residual: combinedOne }).describe("each statistic's per-run p-values combined across the runs by the plan's method"),
+    leading: z.enum(['l2', 'score', 'residual']).describe('the statistic with the smallest combined p-value'),
+    draws: z.number().int().describe('Monte Carlo draws of the calibration'),
+    bound: z.boolean().describe('no draw reached the observed value: pValue is min(1/(draws + 1), 3 × statistic)'),
+  })
+  .describe('fixed-sample combination: valid for a number of runs fixed in advance');
 
 const readSummary = z.object({
   file: z.string(),
@@ -247,7 +259,7 @@ export interface ReportVignette {
   readonly horizon: number;
   readonly summary?: ModelSummary;
   readonly error?: string;
-  readonly combined?: Combined;
+  readonly combined?: StatisticsCombined;
 }
 
 /** Assemble the document from per-run rows (the live service keeps rows; the batch path makes them). */
@@ -255,7 +267,7 @@ export function assembleReport(
   plan: EventPlan,
   vignettes: readonly ReportVignette[],
   runs: readonly RunReport[],
-  combinedAll: Combined | undefined,
+  combinedAll: StatisticsCombined | undefined,
   inputs: { baseline?: ReadReport; live?: ReadReport },
   extras: { sequential?: AssessmentReport['sequential']; log?: AssessmentReport['log'] } = {},
 ): AssessmentReport {

@@ -3,7 +3,7 @@ import { formatP } from './format.js';
 import { runOrder, stepSelection, type EventView, type SortMode, type ViewState } from './model.js';
 import { pValue } from './parts.js';
 import type { EventStore, NoteInput } from './store.js';
-import { pageVars, shared } from './theme.js';
+import { COLORS, pageVars, shared } from './theme.js';
 import type { EvidenceSeries } from './evidence-timeline.js';
 import './event-overview.js';
 import './evidence-timeline.js';
@@ -79,6 +79,14 @@ export class PlApp extends LitElement {
         display: inline-flex;
         gap: 8px;
         align-items: baseline;
+      }
+      .combined .parts {
+        font-size: 12px;
+        color: var(--pl-muted);
+      }
+      .combined .part.leading {
+        color: var(--pl-ink);
+        font-weight: 600;
       }
       .combined .note {
         color: var(--pl-muted);
@@ -262,9 +270,13 @@ export class PlApp extends LitElement {
     const c = ev?.combined;
     if (!ev) return nothing;
     if (!c) return html`<span class="combined" id="combined"><span class="muted">Combined evidence: no completed run yet</span></span>`;
+    const b = c.byStatistic;
+    const part = (key: 'l2' | 'score' | 'residual', label: string) =>
+      html`<span class=${`part${c.leading === key ? ' leading' : ''}`} data-statistic=${key} data-value=${String(b[key])}>${label} ${formatP(b[key])}</span>`;
     return html`<span class="combined" id="combined" data-value=${String(c.pValue)} title=${c.note}>
-      <span>Event combined (${c.method}, ${c.count} run${c.count === 1 ? '' : 's'})</span>
+      <span>Event combined (${c.count} run${c.count === 1 ? '' : 's'})</span>
       ${pValue(c.pValue, 'final', c.alpha)}
+      <span class="parts" aria-label=${`each statistic combined by ${c.method}`}>${part('l2', 'L2')} · ${part('score', 'score')} · ${part('residual', 'residual')}</span>
       <span class="note">fixed-sample: valid only for a run count fixed in advance</span>
     </span>`;
   }
@@ -284,11 +296,21 @@ export class PlApp extends LitElement {
     return [
       {
         id: 'fixed-sample',
-        name: `${method} combination of final p-values`,
-        note: `fixed-sample: valid only for a run count fixed in advance (${method}, after each completed run; latest p = ${formatP(ev.combined?.pValue)})`,
+        name: 'combined p (smallest statistic, calibrated)',
+        note: `fixed-sample: valid only for a run count fixed in advance. Each statistic's final p-values are combined by ${method}; the smallest of the three is calibrated by seeded Monte Carlo draws of the simulated runs as pseudo-live runs (latest p = ${formatP(ev.combined?.pValue)}). Ties among simulated runs are broken by seeded uniform draws (smoothed p-values), so the numbers are reproducible from the plan's seed.`,
         scale: 'p',
         points: ev.timeline.map((p) => ({ x: p.runs, y: p.pValue, label: p.run, at: p.at })),
       },
+      ...(['l2', 'score', 'residual'] as const).map((k, i) => ({
+        id: `fixed-${k}`,
+        name: `${k === 'l2' ? 'L2' : k} (${method})`,
+        note: `${k === 'l2' ? 'L2' : k} p-values combined by ${method} (latest p = ${formatP(ev.combined?.byStatistic[k])})`,
+        scale: 'p' as const,
+        thin: true,
+        color: [COLORS.sim, COLORS.simultaneous, COLORS.busy][i],
+        symbol: (['rect', 'triangle', 'circle'] as const)[i],
+        points: ev.timeline.flatMap((p) => (p.byStatistic ? [{ x: p.runs, y: p.byStatistic[k], label: p.run, at: p.at }] : [])),
+      })),
       {
         id: 'sequential',
         name: 'anytime-valid evidence (test martingale)',

@@ -225,7 +225,7 @@ export class PlEventOverview extends LitElement {
           <div class="vmeta">
             ${cond ? html`<span class="cond">${cond}</span>` : nothing} ${baselineStatus(v)}
             ${v.combined && v.combined.count > 1
-              ? html`<span class="combined">vignette combined (${v.combined.method}, ${v.combined.count} runs): ${pValue(v.combined.pValue, 'final', alpha, { compact: true })}</span>`
+              ? html`<span class="combined" title=${v.combined.note}>vignette combined (${v.combined.count} runs, led by ${v.combined.leading === 'l2' ? 'L2' : v.combined.leading}): ${pValue(v.combined.pValue, 'final', alpha, { compact: true })}</span>`
               : nothing}
             ${v.adjustedPValue !== undefined
               ? html`<span class="combined" title="Holm-adjusted over the event's vignettes">Holm-adjusted ${pValue(v.adjustedPValue, 'final', alpha, { compact: true })}${v.verdict ? html` <span class="muted">(${v.verdict})</span>` : nothing}</span>`

@@ -29,6 +29,8 @@ export interface EvidenceSeries {
   readonly points: readonly EvidencePoint[];
   readonly color?: string;
   readonly dashed?: boolean;
+  /** A secondary line (e.g. one statistic's share of the headline). */
+  readonly thin?: boolean;
   readonly symbol?: 'circle' | 'triangle' | 'rect' | 'diamond';
 }
 
@@ -48,7 +50,7 @@ export class PlEvidenceTimeline extends LitElement {
       }
       .chart {
         width: 100%;
-        height: var(--pl-chart-height, 230px);
+        height: var(--pl-chart-height, 270px);
       }
       ul {
         margin: 4px 0 0;
@@ -109,13 +111,15 @@ export class PlEvidenceTimeline extends LitElement {
   private baseOption(): ChartOption {
     const axisStyle = { axisLabel: { color: COLORS.muted }, splitLine: { lineStyle: { color: '#eef0f3' } } };
     return {
-      grid: { outerBoundsMode: 'none', left: 74, right: this.hasEvidence() ? 74 : 16, top: 28, bottom: 36 },
+      // The legend sits in its own band under the axis title (scrolling when it is long), so it
+      // never covers the plot; the right margin holds the right axis's labels and its title.
+      grid: { outerBoundsMode: 'none', left: 74, right: this.hasEvidence() ? 78 : 16, top: 12, bottom: 70 },
       aria: { enabled: true },
-      legend: { top: 0, left: 50, textStyle: { fontSize: 11, color: COLORS.muted }, itemWidth: 16, itemHeight: 8 },
+      legend: { type: 'scroll', bottom: 0, left: 8, right: 8, textStyle: { fontSize: 11, color: COLORS.muted }, itemWidth: 16, itemHeight: 8 },
       xAxis: { type: 'value', name: 'runs completed (count)', nameLocation: 'middle', nameGap: 22, min: 0, minInterval: 1, ...axisStyle },
       yAxis: [
-        { type: 'log', name: 'combined p-value (log scale)', nameLocation: 'middle', nameGap: 50, max: 1, ...axisStyle },
-        { type: 'log', name: 'evidence against the simulation (log scale)', nameLocation: 'middle', nameGap: 42, show: this.hasEvidence(), ...axisStyle, splitLine: { show: false } },
+        { type: 'log', name: 'combined p-value (log)', nameLocation: 'middle', nameGap: 50, max: 1, ...axisStyle },
+        { type: 'log', name: 'evidence (e-value, log)', nameLocation: 'middle', nameGap: 44, show: this.hasEvidence(), ...axisStyle, splitLine: { show: false } },
       ],
       tooltip: { trigger: 'item', renderMode: 'richText', confine: true, formatter: (p: unknown) => this.tooltip(p) },
     };
@@ -132,7 +136,7 @@ export class PlEvidenceTimeline extends LitElement {
       data: s.points.map((p) => ({ value: [p.x, p.y], label: { show: false }, name: p.label, at: p.at })),
       symbol: s.symbol ?? 'circle',
       symbolSize: 7,
-      lineStyle: { color: s.color ?? palette[i % palette.length], width: 2, type: s.dashed ? [6, 3] : 'solid' },
+      lineStyle: { color: s.color ?? palette[i % palette.length], width: s.thin ? 1.2 : 2, type: s.dashed ? [6, 3] : s.thin ? [2, 2] : 'solid' },
       itemStyle: { color: s.color ?? palette[i % palette.length] },
     }));
     // Decision lines as data, so the log axes always include them.

@@ -123,6 +123,15 @@ export class PlHistogram extends LitElement {
     };
   }
 
+  /** 'right' when the run's value is in the right half of the histogram's range, else 'left'. */
+  private labelAlign(v: number): 'left' | 'right' {
+    const { edges } = this.hist;
+    if (edges.length < 2) return 'left';
+    const lo = Math.min(edges[0], v);
+    const hi = Math.max(edges[edges.length - 1], v);
+    return v > (lo + hi) / 2 ? 'right' : 'left';
+  }
+
   private series(): SeriesOption[] {
     const { edges, counts } = this.hist;
     // A step line over the bin edges: one polyline, whatever the number of simulated runs.
@@ -156,7 +165,9 @@ export class PlHistogram extends LitElement {
                 symbol: ['none', final ? 'diamond' : 'emptyDiamond'],
                 symbolSize: 10,
                 lineStyle: { color: COLORS.live, width: 2, type: final ? 'solid' : [4, 3] },
-                label: { formatter: final ? 'this run' : 'this run (provisional)', color: COLORS.live, fontSize: 10, position: 'end', distance: 2 },
+                // Anchored on the side of the line that faces the middle of the axis, so the text
+                // stays inside the chart wherever the run falls.
+                label: { formatter: final ? 'this run' : 'this run (provisional)', color: COLORS.live, fontSize: 10, position: 'end', distance: 2, align: this.labelAlign(v) },
                 data: [{ xAxis: v }],
               },
       },

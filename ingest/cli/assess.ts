@@ -86,15 +86,26 @@ export function formatReport(plan: EventPlan, report: AssessmentReport): string 
     out.push(`${i.file}: ${i.accepted} points in ${i.tracks} tracks${extra.length ? ` (${extra.join(', ')})` : ''}`);
   }
   if (report.combined) {
-    const c = report.combined;
     out.push('');
-    out.push(
-      `combined (${c.method}, ${c.count} runs): p = ${formatP(c.pValue)} — ${c.distinguishable ? `live runs are statistically distinguishable from the simulation at alpha = ${c.alpha}` : `no significant difference at alpha = ${c.alpha}`}`,
-    );
+    out.push(...combinedLines(report.combined));
   }
   out.push('');
   for (const caution of report.cautions) out.push(`caution: ${caution}`);
   return out.join('\n');
+}
+
+/**
+ * The event's fixed-sample evidence in words: the headline (the smallest per-statistic combined
+ * p-value, calibrated over the three statistics) and the three combined values beside it, so the
+ * reader sees which kind of difference drives it.
+ */
+export function combinedLines(c: NonNullable<AssessmentReport['combined']>): string[] {
+  const b = c.byStatistic;
+  const verdict = c.distinguishable ? `live runs are statistically distinguishable from the simulation at alpha = ${c.alpha}` : `no significant difference at alpha = ${c.alpha}`;
+  return [
+    `combined over ${c.count} runs: p = ${c.bound ? '≤ ' : ''}${formatP(c.pValue)} — ${verdict}`,
+    `  per statistic (${c.method}): L2 p = ${formatP(b.l2.pValue)}, score p = ${formatP(b.score.pValue)}, residual p = ${formatP(b.residual.pValue)}; led by ${c.leading}; the smallest calibrated over the three by ${c.draws} seeded Monte Carlo draws`,
+  ];
 }
 
 export async function writeReport(path: string, report: AssessmentReport): Promise<void> {

@@ -10,6 +10,7 @@ import { DEFAULT_STRATEGY, eventEvidence, type StreamRun } from '../../engine/ev
 import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary, type RunOutcome } from '../../engine/event.js';
 import { practicalDifference, type ChannelDifference } from '../../engine/practical.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
+import { buildReference, DEFAULT_TIE_SEED, type CalibrationReference } from '../../engine/calibrate.js';
 import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
 import { fitProjectionModel, projectRemainder, type Projection, type ProjectionModel } from '../../engine/projection.js';
 import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
@@ -77,7 +78,13 @@ interface VignetteState {
   projection?: ProjectionModel;
   /** Scores of the simulated runs on the first two components of the full-window model: the sign reference for score views. */
   referenceScores?: [Float64Array, Float64Array];
-  windows: Map<string, Float64Array[]>;
+  /** Per judged window: the simulated curves cut to it and their calibration reference, shared by every run. */
+  windows: Map<string, WindowEntry>;
+}
+
+interface WindowEntry {
+  readonly curves: Float64Array[];
+  readonly reference: CalibrationReference;
 }
 
 const WINDOW_CACHE = 48;
@@ -116,6 +123,8 @@ export class Compute {
       // The projection model's leading components are those of the simulated runs over the whole horizon.
       const pm = v.projection.fpca;
       v.referenceScores = [Float64Array.from(pm.scores, (r) => r[0] ?? 0), Float64Array.from(pm.scores, (r) => r[1] ?? 0)];
+      // The full window's reference, so that the first complete run is judged at once.
+      this.windowEntry(v as VignetteState & { baseline: Baseline }, fullWindow(baseline.horizon));
       return {
         vignette,
         sims: sims.length,
@@ -131,6 +140,29 @@ export class Compute {
       v.projection = undefined;
       return { vignette, sims: sims.length, error: e instanceof Error ? e.message : String(e), ms: performance.now() - start };
     }
+  }
+
+  /**
+   * The simulated curves cut to a window and their calibration reference (leave-one-out statistics,
+   * engine/calibrate.ts), computed once per window and shared by every run judged on it.
+   */
+  private windowEntry(v: VignetteState & { baseline: Baseline }, window: TrackWindow): WindowEntry {
+    const key = windowKey(window);
+    const hit = v.windows.get(key);
+    if (hit) {
+      // Most recently used last.
+      v.windows.delete(key);
+      v.windows.set(key, hit);
+      return hit;
+    }
+    const curves = curvesForWindow(v.baseline, window).curves;
+    const b = v.baseline;
+    const reference = curves.length >= 19 ? buildReference(curves, windowWeights(b.grid, window), b.channels.length, b.settings.components, b.settings.seed ?? DEFAULT_TIE_SEED) : undefined;
+    if (!reference) throw new NotAssessableError(`only ${curves.length} simulated tracks cover the window; at least 19 are needed for p = 0.05`);
+    const entry = { curves, reference };
+    v.windows.set(key, entry);
+    if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
+    return entry;
   }
 
   /** The prefix window of a run in flight: [0, t_q] with t_q on the provisional step, when clean. */
@@ -196,7 +228,9 @@ export class Compute {
       let practical: ChannelDifference[] | undefined;
       let diagnosis: Diagnosis | undefined;
       if (mode === 'final') {
-        const outcome = judgeRun(ready.baseline, run, v.simMean);
+        const window = observedWindow(run.t, ready.baseline.horizon, this.config.analysis.gapFactor, ready.baseline.grid.step);
+        const entry = this.windowEntry(ready, window);
+        const outcome = judgeRun(ready.baseline, run, v.simMean, { window, curves: entry.curves, reference: entry.reference });
         assessment = outcome.assessment as RunAssessment;
         practical = outcome.practical;
         diagnosis = outcome.diagnosis;
@@ -204,19 +238,13 @@ export class Compute {
         const p = this.provisionalWindow(run, ready);
         if (!p) return { ...base, upTo: 0, error: 'not enough of the run yet', ms: performance.now() - start };
         upTo = p.upTo;
-        const key = windowKey(p.window);
-        let curves = v.windows.get(key);
-        if (!curves) {
-          curves = curvesForWindow(ready.baseline, p.window).curves;
-          v.windows.set(key, curves);
-          if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
-        }
-        assessment = assessRun(ready.baseline, p.cut, { window: p.window, windowCurves: curves });
-        practical = practicalDifference(assessment.curve, assessment.active, curves, ready.baseline.grid, this.config.channels);
+        const entry = this.windowEntry(ready, p.window);
+        assessment = assessRun(ready.baseline, p.cut, { window: p.window, windowCurves: entry.curves, reference: entry.reference });
+        practical = practicalDifference(assessment.curve, assessment.active, entry.curves, ready.baseline.grid, this.config.channels);
       }
       const projection = projectRemainder(v.projection, assessment.curve, assessment.active);
       const m = assessment.result.model;
-      const N = m.n - 1;
+      const N = m.n;
       const k2 = Math.min(2, m.eigenvalues.length);
       // Each fit's components have an arbitrary sign; orient them like the full-window model's (by
       // the simulated runs' scores) so that a run's trail over successive fits does not jump.
@@ -231,7 +259,7 @@ export class Compute {
       const col = (k: number) => (k < k2 ? Array.from({ length: N }, (_, i) => signs[k] * m.scores[i][k]) : new Array<number>(N).fill(0));
       const scoreCloud = {
         sims: [col(0), col(1)] as [number[], number[]],
-        run: [k2 > 0 ? signs[0] * m.scores[N][0] : 0, k2 > 1 ? signs[1] * m.scores[N][1] : 0] as [number, number],
+        run: [k2 > 0 ? signs[0] * assessment.result.liveScores[0] : 0, k2 > 1 ? signs[1] * assessment.result.liveScores[1] : 0] as [number, number],
         eigenvalues: [m.eigenvalues[0] ?? 0, m.eigenvalues[1] ?? 0] as [number, number],
       };
       return { ...base, upTo, assessment, rms: rmsDeviation(assessment, ready.baseline, v.simMean), practical, diagnosis, projection, scoreCloud, ms: performance.now() - start };

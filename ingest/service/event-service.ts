@@ -10,9 +10,10 @@
  * touches what was accepted before it.
  */
 import { Subject } from 'rxjs';
-import { combinePValues, type Combined } from '../../engine/combine.js';
+import type { PerStatistic } from '../../engine/calibrate.js';
+import { combineStatistics, type StatisticsCombined } from '../../engine/combine-statistics.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
-import type { ModelSummary } from '../../engine/event.js';
+import { EVENT_LABEL, type ModelSummary } from '../../engine/event.js';
 import type { RawTrack } from '../../engine/types.js';
 import { unwrapCircular } from '../../engine/unwrap.js';
 import { closeTrack as closeQuality, initialQuality, observePoint, type QualityFlag, type QualityState } from '../../engine/quality.js';
@@ -62,6 +63,8 @@ interface TrackState {
   judgement?: Judgement;
   notJudged?: string;
   report?: RunReport;
+  /** The simulated runs' own p-value triples in the run's window (engine/calibrate.ts), for combining. */
+  nullPValues?: PerStatistic<number[]>;
   detail?: DetailExtras;
   trail: Array<[number, number, number]>;
   lastProvisionalT: number;
@@ -108,6 +111,7 @@ interface StagedAck {
 interface StoredResult {
   readonly judgement: Judgement;
   readonly report: RunReport;
+  readonly nullPValues?: PerStatistic<number[]>;
   readonly detail?: DetailExtras;
   readonly trail: Array<[number, number, number]>;
   readonly notJudged?: string;
@@ -209,6 +213,7 @@ export class EventService {
       if (stored) {
         t.judgement = stored.judgement;
         t.report = stored.report;
+        t.nullPValues = stored.nullPValues;
         t.detail = stored.detail;
         t.trail = stored.trail;
         t.notJudged = stored.notJudged;
@@ -525,7 +530,7 @@ export class EventService {
       this.assessor.assess(t.vignette, raw, 'final').then((r) => {
         if (!r) return;
         this.applyResult(t, r);
-        const stored: StoredResult = { judgement: t.judgement as Judgement, report: t.report as RunReport, detail: t.detail, trail: t.trail, notJudged: t.notJudged };
+        const stored: StoredResult = { judgement: t.judgement as Judgement, report: t.report as RunReport, nullPValues: t.nullPValues, detail: t.detail, trail: t.trail, notJudged: t.notJudged };
         if (t.report) this.journal.saveResult(t.id, stored);
         this.addTimelinePoint(t, this.clock());
         this.refreshEvidence();
@@ -581,7 +586,10 @@ export class EventService {
       scores: r.scoreCloud ? { sims: r.scoreCloud.sims, eigenvalues: r.scoreCloud.eigenvalues } : undefined,
       reference: { l2: Array.from(res.reference.l2), score: Array.from(res.reference.score), residual: Array.from(res.reference.residual) },
     };
-    if (r.mode === 'final') t.report = runReport(this.plan, { vignette: t.vignette, track: t.track, samples: r.samples, assessment: a, rms: r.rms, practical: r.practical, diagnosis: r.diagnosis });
+    if (r.mode === 'final') {
+      t.report = runReport(this.plan, { vignette: t.vignette, track: t.track, samples: r.samples, assessment: a, rms: r.rms, practical: r.practical, diagnosis: r.diagnosis });
+      t.nullPValues = { l2: Array.from(res.nullPValues.l2), score: Array.from(res.nullPValues.score), residual: Array.from(res.nullPValues.residual) };
+    }
     this.changes$.next({ kind: 'run', key: t.key });
   }
 
@@ -603,33 +611,59 @@ export class EventService {
   private addTimelinePoint(t: TrackState, at: number): void {
     if (!t.report?.overall) return;
     this.completionOrder.push(t);
-    const combined = this.combine(this.finalReports().filter((r) => this.completionOrder.some((x) => x.report === r)));
-    if (combined) this.timeline.push({ at, run: t.key, runs: combined.count, pValue: combined.pValue });
+    const combined = this.combine(this.finalTracks().filter((x) => this.completionOrder.includes(x)), EVENT_LABEL);
+    if (combined) {
+      const b = combined.byStatistic;
+      this.timeline.push({ at, run: t.key, runs: combined.count, pValue: combined.pValue, byStatistic: { l2: b.l2.pValue, score: b.score.pValue, residual: b.residual.pValue } });
+    }
   }
 
-  /** Final per-run p-values in the batch order (plan vignette order, then track id). */
-  private finalReports(): RunReport[] {
+  /** Live runs with a final judgement in the batch order (plan vignette order, then track id). */
+  private finalTracks(): TrackState[] {
     const order = new Map(this.plan.vignettes.map((v, i) => [v.id, i]));
     return [...this.tracks.values()]
       .filter((t) => t.source === 'live' && t.report)
-      .sort((a, b) => (order.get(a.vignette) ?? 0) - (order.get(b.vignette) ?? 0) || (a.track < b.track ? -1 : a.track > b.track ? 1 : 0))
-      .map((t) => t.report as RunReport);
+      .sort((a, b) => (order.get(a.vignette) ?? 0) - (order.get(b.vignette) ?? 0) || (a.track < b.track ? -1 : a.track > b.track ? 1 : 0));
   }
 
-  private combine(reports: readonly RunReport[]): Combined | undefined {
-    const p = reports.flatMap((r) => (r.overall ? [r.overall.pValue] : []));
-    return p.length > 0 ? combinePValues(p, this.plan.analysis.combination) : undefined;
+  private finalReports(): RunReport[] {
+    return this.finalTracks().map((t) => t.report as RunReport);
   }
 
-  private combinedView(c: Combined | undefined): CombinedView | undefined {
-    return c ? { ...c, note: `fixed-sample ${c.method} combination: valid only for a number of runs fixed in advance` } : undefined;
+  /**
+   * Each statistic combined across the judged runs and their calibrated minimum, as the batch path
+   * computes it (engine/combine-statistics.ts); `label` is the family's name in the draws' seed.
+   */
+  private combine(tracks: readonly TrackState[], label: string): StatisticsCombined | undefined {
+    const runs = tracks.flatMap((t) => {
+      const st = t.report?.statistics;
+      if (!st || !t.nullPValues) return [];
+      return [{ pValues: { l2: st.l2.pValue, score: st.score.pValue, residual: st.residual.pValue }, nullPValues: t.nullPValues }];
+    });
+    const a = this.plan.analysis;
+    return runs.length > 0 ? combineStatistics(runs, a.combination, a.seed ?? 1, label) : undefined;
+  }
+
+  private combinedView(c: StatisticsCombined | undefined): CombinedView | undefined {
+    return c
+      ? {
+          method: c.method,
+          statistic: c.statistic,
+          pValue: c.pValue,
+          count: c.count,
+          byStatistic: { l2: c.byStatistic.l2.pValue, score: c.byStatistic.score.pValue, residual: c.byStatistic.residual.pValue },
+          leading: c.leading,
+          note: `fixed-sample ${c.method} combination of each statistic, the smallest of the three calibrated by ${c.draws} Monte Carlo draws (seeded): valid only for a number of runs fixed in advance`,
+        }
+      : undefined;
   }
 
   exportReport(): AssessmentReport {
-    const reports = this.finalReports();
+    const tracks = this.finalTracks();
+    const reports = tracks.map((t) => t.report as RunReport);
     const vignettes = this.plan.vignettes.map((pv) => {
       const v = this.vignettes.get(pv.id) as VignetteState;
-      return { id: pv.id, horizon: pv.horizon, summary: v.summary, error: v.reason, combined: this.combine(reports.filter((r) => r.vignette === pv.id)) };
+      return { id: pv.id, horizon: pv.horizon, summary: v.summary, error: v.reason, combined: this.combine(tracks.filter((t) => t.vignette === pv.id), pv.id) };
     });
     const e = this.evidence;
     const sequential = e
@@ -647,7 +681,7 @@ export class EventService {
       const x = this.logView(e);
       return { at: x.at, kind: x.kind, vignette: x.vignette, track: x.track, t: x.t, text: x.text, author: x.author };
     });
-    return assembleReport(this.plan, vignettes, reports, this.combine(reports), { baseline: this.baselineRead }, { sequential, log });
+    return assembleReport(this.plan, vignettes, reports, this.combine(tracks, EVENT_LABEL), { baseline: this.baselineRead }, { sequential, log });
   }
 
   runView(key: string): RunView | undefined {
@@ -674,9 +708,9 @@ export class EventService {
     const v = this.vignettes.get(id);
     const pv = this.plan.vignettes.find((x) => x.id === id);
     if (!v || !pv) return undefined;
-    const reports = this.finalReports();
+    const tracks = this.finalTracks();
     const verdict = vignetteVerdicts(
-      this.plan.vignettes.map((x) => ({ id: x.id, combined: this.combine(reports.filter((r) => r.vignette === x.id)) })),
+      this.plan.vignettes.map((x) => ({ id: x.id, combined: this.combine(tracks.filter((t) => t.vignette === x.id), x.id) })),
       this.plan.analysis.alpha,
     ).get(id);
     return {
@@ -685,7 +719,7 @@ export class EventService {
       horizon: pv.horizon,
       condition: pv.condition,
       baseline: { status: v.status, sims: v.sims, components: v.summary?.components, varianceExplained: v.summary?.varianceExplained, reason: v.reason },
-      combined: this.combinedView(this.combine(reports.filter((r) => r.vignette === id))),
+      combined: this.combinedView(this.combine(tracks.filter((t) => t.vignette === id), id)),
       evidence: this.evidence?.streams.find((x) => x.vignette === id && x.runs > 0),
       adjustedPValue: verdict?.adjustedPValue,
       verdict: verdict?.verdict ?? 'not judged',
@@ -693,7 +727,7 @@ export class EventService {
   }
 
   combinedEventView(): EventView['combined'] {
-    const c = this.combinedView(this.combine(this.finalReports()));
+    const c = this.combinedView(this.combine(this.finalTracks(), EVENT_LABEL));
     return c ? { ...c, alpha: this.plan.analysis.alpha, distinguishable: c.pValue <= this.plan.analysis.alpha } : undefined;
   }
 

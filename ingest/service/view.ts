@@ -75,9 +75,15 @@ export interface VignetteView {
 
 export interface CombinedView {
   readonly method: string;
+  /** The smallest of the three per-statistic combined p-values. */
   readonly statistic: number;
+  /** That minimum calibrated over the three statistics (engine/combine-statistics.ts): the headline. */
   readonly pValue: number;
   readonly count: number;
+  /** Each statistic's p-values combined across the runs by the plan's method. */
+  readonly byStatistic: { readonly l2: number; readonly score: number; readonly residual: number };
+  /** The statistic with the smallest combined p-value. */
+  readonly leading: 'l2' | 'score' | 'residual';
   /** Fixed-sample combination: valid only for a run count fixed in advance. */
   readonly note: string;
 }
@@ -98,8 +104,10 @@ export interface TimelinePoint {
   readonly at: number;
   readonly run: string;
   readonly runs: number;
-  /** Fixed-sample combination of the final p-values so far (plan's method). */
+  /** Fixed-sample combination of the final p-values so far (calibrated minimum over the statistics). */
   readonly pValue: number;
+  /** Each statistic's combined p-value so far. */
+  readonly byStatistic?: { readonly l2: number; readonly score: number; readonly residual: number };
   /** The event's anytime-valid evidence (test martingale) after this run. */
   readonly evidence?: number;
 }

@@ -7,7 +7,9 @@
  *   - smoothing every simulated track (P-spline, GCV per channel);
  *   - baseline fit per vignette (mean, weighted FPCA), and the same fit by numpy (LAPACK eigh)
  *     on the same curves in the same run, as a ratio; the leading eigenvalues must agree first;
- *   - full-conformal calibration of one live run (a fit of N + 1 curves and the rank p-values);
+ *   - the calibration reference of one window (the model of the N simulated curves and every
+ *     simulated curve's leave-one-out statistics), the judgement of one closed run against a cached
+ *     reference, and the earlier pooled fit of N + 1 curves per run for comparison;
  *   - scoring one smoothed track against a fitted model (projection), and smoothing + scoring.
  */
 import { spawnSync } from 'node:child_process';
@@ -15,7 +17,7 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { applyBasis, evaluateBasis, splineBasis } from '../../engine/bspline.js';
-import { conformalAssess, channelScales, joinedWeights } from '../../engine/calibrate.js';
+import { buildReference, channelScales, joinedWeights, judgeAgainst, pooledConformalAssess } from '../../engine/calibrate.js';
 import { fitFpca, projectCurve } from '../../engine/fpca.js';
 import { fullWindow, uniformGrid, windowWeights } from '../../engine/grid.js';
 import { differencePenaltyBand, smoothGcv } from '../../engine/pspline.js';
@@ -114,15 +116,27 @@ function main(): void {
     }
   }
 
-  // 4. full-conformal calibration of one live run
+  // 4. calibration: the window's reference (once per window, shared by every run judged on it)
+  // and the judgement of one closed run against it; the earlier pooled fit of N + 1 curves beside.
   const liveRaw = track(rng);
   const liveCurve = new Float64Array(2 * GRID);
   for (let ch = 0; ch < 2; ch++) applyBasis(ev, smoothGcv(basis, liveRaw.t, liveRaw.y[ch], P).coefficients, liveCurve, ch * GRID);
-  conformalAssess(curves[0], liveCurve, gw, 2, { kind: 'variance', fraction: FRACTION });
+  const rule = { kind: 'variance', fraction: FRACTION } as const;
+  buildReference(curves[0], gw, 2, rule);
+  const refReps = Math.min(V, 4);
   t0 = performance.now();
-  const reps = 10;
-  for (let i = 0; i < reps; i++) conformalAssess(curves[i % V], liveCurve, gw, 2, { kind: 'variance', fraction: FRACTION });
-  console.log(`full-conformal calibration of one run against ${N} simulated tracks: ${ms((performance.now() - t0) / reps)}`);
+  const refs = Array.from({ length: refReps }, (_, i) => buildReference(curves[i], gw, 2, rule));
+  console.log(`calibration reference of one window (model of ${N} simulated curves + every leave-one-out statistic): ${ms((performance.now() - t0) / refReps)}`);
+  const judgeReps = 20000;
+  t0 = performance.now();
+  let check = 0;
+  for (let i = 0; i < judgeReps; i++) check += judgeAgainst(refs[i % refReps], liveCurve, i).pValues.overall;
+  console.log(`judging one closed run (smoothed) against a cached reference of ${N}: ${((1000 * (performance.now() - t0)) / judgeReps).toFixed(1)} µs (checksum ${check.toFixed(3)})`);
+  pooledConformalAssess(curves[0], liveCurve, gw, 2, rule);
+  t0 = performance.now();
+  const reps = 5;
+  for (let i = 0; i < reps; i++) pooledConformalAssess(curves[i % V], liveCurve, gw, 2, rule);
+  console.log(`earlier calibration (one pooled fit of ${N + 1} curves per run): ${ms((performance.now() - t0) / reps)}`);
 
   // 5. scoring
   const k = 2000;

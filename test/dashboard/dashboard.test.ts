@@ -189,7 +189,11 @@ describe('the dashboard against a live event', () => {
     }
     const combined = page.locator('#combined');
     await expect.poll(() => combined.getAttribute('data-value'), { timeout: 15_000 }).toBe(String(ev.combined?.pValue));
-    expect(await combined.textContent()).toContain(`${ev.combined?.method}, ${ev.combined?.count} runs`);
+    expect(await combined.textContent()).toContain(`Event combined (${ev.combined?.count} runs)`);
+    // The three per-statistic combined values beside the headline, equal to the server's.
+    for (const k of ['l2', 'score', 'residual'] as const) {
+      expect(await combined.locator(`[data-statistic="${k}"]`).getAttribute('data-value')).toBe(String(ev.combined?.byStatistic[k]));
+    }
     expect(await combined.textContent()).toContain('valid only for a run count fixed in advance');
     // The evidence timeline names its method and its validity.
     expect(await page.locator('pl-evidence-timeline li').first().textContent()).toContain('fixed-sample: valid only for a run count fixed in advance');

@@ -30,7 +30,8 @@ describe('plumbline assess', () => {
     expect(r.stderr).not.toMatch(/internal failure/);
     expect(r.status).toBe(0);
     expect(r.stdout).toMatch(/vignette\s+run\s+p\(L2\)/);
-    expect(r.stdout).toMatch(/combined \(fisher, 9 runs\)/);
+    expect(r.stdout).toMatch(/combined over 9 runs: p = /);
+    expect(r.stdout).toMatch(/per statistic \(fisher\): L2 p = .*, score p = .*, residual p = /);
     expect(r.stdout).toMatch(/caution: Statistical agreement is evidence, not accreditation/);
     const doc = assessmentReportSchema.parse(JSON.parse(readFileSync(out, 'utf8')));
     expect(doc.runs).toHaveLength(9);

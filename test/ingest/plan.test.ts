@@ -59,7 +59,7 @@ describe('parsePlan: valid plans', () => {
     const doc = {
       ...minimal(),
       description: 'two lanes',
-      analysis: { alpha: 0.5, components: { fixed: 4 }, gridSize: 16, segments: 400, combination: 'cauchy', gapFactor: 1.5 },
+      analysis: { alpha: 0.5, components: { fixed: 4 }, gridSize: 16, segments: 400, combination: 'cauchy', gapFactor: 1.5, seed: 42 },
     };
     const plan = parsePlan(JSON.stringify(doc), 'plan.json');
     expect(plan.description).toBe('two lanes');
@@ -70,6 +70,7 @@ describe('parsePlan: valid plans', () => {
       segments: 400,
       combination: 'cauchy',
       gapFactor: 1.5,
+      seed: 42,
     });
     const frac = parsePlan(JSON.stringify({ ...minimal(), analysis: { components: { varianceFraction: 0.8 } } }), 'p.json');
     expect(frac.analysis.components).toEqual({ kind: 'variance', fraction: 0.8 });

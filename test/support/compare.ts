@@ -34,6 +34,13 @@ export function binomialInterval(n: number, p: number, level: number): { lo: num
   return { lo, hi };
 }
 
+/** P(lo ≤ X ≤ hi) for X ~ Binomial(n, p), from the exact probability mass function. */
+export function binomialMass(n: number, p: number, lo: number, hi: number): number {
+  let s = 0;
+  for (let k = Math.max(0, lo); k <= Math.min(n, hi); k++) s += Math.exp(logChoose(n, k) + k * Math.log(p) + (n - k) * Math.log1p(-p));
+  return s;
+}
+
 function logChoose(n: number, k: number): number {
   let s = 0;
   for (let i = 1; i <= k; i++) s += Math.log(n - k + i) - Math.log(i);
