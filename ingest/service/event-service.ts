@@ -145,6 +145,8 @@ export class EventService {
   private readonly vignettes = new Map<string, VignetteState>();
   private readonly log: LogEntryView[] = [];
   private readonly timeline: TimelinePoint[] = [];
+  /** Combinations computed since the last final judgement, by family and runs (see `combine`). */
+  private readonly combinations = new Map<string, StatisticsCombined | undefined>();
   /** Judged live runs in the order their final judgement arrived (journal order on restore). */
   private readonly completionOrder: TrackState[] = [];
   private evidence?: EvidenceResult;
@@ -589,6 +591,7 @@ export class EventService {
     if (r.mode === 'final') {
       t.report = runReport(this.plan, { vignette: t.vignette, track: t.track, samples: r.samples, assessment: a, rms: r.rms, practical: r.practical, diagnosis: r.diagnosis });
       t.nullPValues = { l2: Array.from(res.nullPValues.l2), score: Array.from(res.nullPValues.score), residual: Array.from(res.nullPValues.residual) };
+      this.combinations.clear();
     }
     this.changes$.next({ kind: 'run', key: t.key });
   }
@@ -635,13 +638,19 @@ export class EventService {
    * computes it (engine/combine-statistics.ts); `label` is the family's name in the draws' seed.
    */
   private combine(tracks: readonly TrackState[], label: string): StatisticsCombined | undefined {
+    // Views ask for the same combinations many times between two final judgements: keep them.
+    const key = `${label}\u0000${tracks.map((t) => t.key).join('\u0001')}`;
+    if (this.combinations.has(key)) return this.combinations.get(key);
     const runs = tracks.flatMap((t) => {
       const st = t.report?.statistics;
       if (!st || !t.nullPValues) return [];
       return [{ pValues: { l2: st.l2.pValue, score: st.score.pValue, residual: st.residual.pValue }, nullPValues: t.nullPValues }];
     });
     const a = this.plan.analysis;
-    return runs.length > 0 ? combineStatistics(runs, a.combination, a.seed ?? 1, label) : undefined;
+    const out = runs.length > 0 ? combineStatistics(runs, a.combination, a.seed ?? 1, label) : undefined;
+    if (this.combinations.size > 1000) this.combinations.clear();
+    this.combinations.set(key, out);
+    return out;
   }
 
   private combinedView(c: StatisticsCombined | undefined): CombinedView | undefined {
