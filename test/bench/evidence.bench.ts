@@ -14,7 +14,7 @@
  *     engine/evidence/), the design of this version;
  *   - one martingale on the overall p-value alone (the previous design);
  *   - other bettors on the three statistics (power mixture, Vovk–Wang, the predictable plug-in
- *     normal shift of Waudby-Smith & Ramdas 2024 §5, a posterior mixture over normal shifts, a
+ *     normal shift (after Waudby-Smith & Ramdas 2024), a posterior mixture over normal shifts, a
  *     mixture of adaptive bettors over the shrinkage c) and an oracle that is told the pool's law
  *     (not a procedure: the best a bettor could do).
  * Then an event of 12 vignettes, 6 with a level shift of 5.5 m, one run of each per round: E[runs

@@ -548,7 +548,7 @@ describe('runs to a decision on p-values from the real engine (N = 200, three sm
    *  - 1.0 where a fixed design needs only a handful of runs (a sequential design that needed more
    *    runs on average than the fixed one it replaces would have no purpose). There the goal of 0.6
    *    is not reached: with 6 fixed runs, even a bettor told the true law of the p-values needs about
-   *    3.1 runs (0.52, printed by `npm run bench:evidence`) and the adaptive one about 4.3 (0.72).
+   *    3.1 runs (0.52, printed by `npm run bench:evidence`) and the adaptive one about 4.3 (0.71).
    * The estimate must meet its target with its Monte Carlo error: mean + 2.58 se ≤ target × n.
    */
   const cases: Array<{ name: string; discrepancy: Parameters<typeof statisticPool>[0]; target: number }> = [

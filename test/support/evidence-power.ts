@@ -7,8 +7,8 @@
  * Per-run p-values: for each statistic (l2, score, residual) the smoothed conformal p-value
  *     p = (#{i : S_i > S} + U · (1 + #{i : S_i = S})) / (N + 1),   U ~ Uniform(0, 1) independent,
  * computed from the live statistic S and the N simulated ones S_i in the same full-conformal fit
- * (Vovk, Gammerman & Shafer, "Algorithmic Learning in a Random World", Springer 2005, §2.4,
- * "smoothed conformal predictors"): exactly Uniform(0, 1) under the null. The overall p-value is the
+ * (Vovk, Gammerman & Shafer, "Algorithmic Learning in a Random World", Springer 2005, ch. 2,
+ * smoothed conformal predictors): exactly Uniform(0, 1) under the null. The overall p-value is the
  * engine's own (the min-p rank of engine/calibrate.ts), which its fixed-sample Fisher verdict uses.
  */
 import { assessRun, buildBaseline } from '../../engine/assess.js';
