@@ -53,10 +53,12 @@ export interface EvidenceOptions {
   readonly resolution?: number;
 }
 
+/** α must lie in (0, 1): the threshold is 1/α. */
 export function checkAlpha(alpha: number): void {
   if (!(alpha > 0 && alpha < 1)) throw new RangeError(`alpha must be in (0, 1), got ${alpha}`);
 }
 
+/** The largest lattice p-value whose bet lifts `current` to `threshold` on the next run (null if none can). */
 export function needs(bettor: Bettor, current: number, threshold: number): number | null {
   // The next calibrator is non-increasing in k, so the cells that would cross form a prefix 1 … k*:
   // binary search for k* (O(log L) bets instead of the whole table).

@@ -568,7 +568,7 @@ describe('runs to a decision on p-values from the real engine (N = 200, three sm
   };
 
   it.each(cases)('$name: E[runs to 1/α] ≤ $target × the fixed-sample Fisher design', ({ name, discrepancy, target }) => {
-    const pool = statisticPool(discrepancy, 200, 4242);
+    const pool = statisticPool(discrepancy, 120, 4242);
     const power = singleRunPower(pool, ALPHA);
     const fixed = fixedDesignRuns(pool, 'fisher-overall', ALPHA, 0.8, REPS, CAP, 11);
     expect(fixed.runs, 'a fixed design within the cap').not.toBeNull();
