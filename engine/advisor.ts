@@ -1,6 +1,6 @@
 /**
  * Run-count advisor: from the per-run p-values seen so far, how many MORE live runs would most
- * likely bring the anytime-valid evidence of ./evidence.ts to its threshold 1/α, if the runs keep
+ * likely bring the anytime-valid evidence of ./evidence/ to its threshold 1/α, if the runs keep
  * looking like the ones so far; and when more runs are unlikely to change the conclusion.
  *
  * Method (Monte Carlo, seeded, a bounded number of draws):
@@ -37,15 +37,24 @@
  *     The plug-in alone would call two agreeing runs futile; the posterior does not, because two
  *     runs cannot rule out a discrepancy that fifty runs would find.
  * Whatever the simulation says, a crossing of the evidence is a false alarm with probability at most
- * α (Ville's inequality; see ./evidence.ts): the simulation guides how many runs to plan, it never
+ * α (Ville's inequality; see ./evidence/martingale.ts): the simulation guides how many runs to plan, it never
  * touches the guarantee. The estimate is only as good as the pattern seen so far: from two or three
  * runs it is rough (test/engine/advisor.test.ts measures how rough).
  *
- * For the event, a "round" is one more run of each vignette; the event martingale (product or
- * average, ./evidence.ts §4) continues with every vignette's pattern drawn from its own runs (from
- * all the event's runs for a vignette without any yet).
+ * Runs with three p-values (l2, score, residual): a vignette's evidence is the average of its three
+ * statistics' martingales (./evidence/event.ts), and each statistic's future p-values are drawn from
+ * its own fitted pattern, independently of the other two. That ignores the dependence between the
+ * statistics of one run (l2 and residual move together under a level shift); the average is carried
+ * by the strongest statistic, so the reach probability depends mostly on that one's pattern.
+ *
+ * For the event, a "round" is one more run of each vignette; the event's evidence (the average over
+ * statistics of the product, average or hedge over vignettes, ./evidence/event.ts) continues with
+ * every vignette's pattern drawn from its own runs (from all the event's runs for a vignette without
+ * any yet).
  */
+import { STATISTICS } from './calibrate.js';
 import {
+  combineLevels,
   createBettor,
   DEFAULT_RESOLUTION,
   DEFAULT_STRATEGY,
@@ -54,7 +63,7 @@ import {
   type EventCombination,
   type EvidenceStrategy,
   type StreamRun,
-} from './evidence.js';
+} from './evidence/index.js';
 import { normalCdf, normalQuantile } from './normal.js';
 import { createRng, type Rng } from './rng.js';
 
@@ -199,10 +208,20 @@ export function posteriorPatternSampler(fit: PatternFit, resolution: number, rng
   return cellSampler(mu, Math.sqrt(sigma2), resolution, rng);
 }
 
+/** One martingale being continued: statistic `statistic` of vignette `vignette`. */
 interface StreamState {
   readonly bettor: Bettor;
   readonly evidence: number;
   readonly fit: PatternFit;
+  readonly vignette: number;
+  readonly statistic: number;
+}
+
+/** The shape of the evidence being continued: V vignettes × S statistics and how vignettes combine. */
+interface Layout {
+  readonly vignettes: number;
+  readonly statistics: number;
+  readonly combine: EventCombination;
 }
 
 function replay(pvalues: ArrayLike<number>, strategy: EvidenceStrategy, resolution: number, threshold: number): { bettor: Bettor; evidence: number; established: boolean } {
@@ -221,38 +240,48 @@ function replay(pvalues: ArrayLike<number>, strategy: EvidenceStrategy, resoluti
 /**
  * P̂(the combined evidence reaches the threshold within j more rounds), j = 1 … horizon: each
  * continuation clones every stream's bettor, draws a generator per stream, and plays rounds (one
- * run of every stream) until the threshold or the horizon.
+ * run of every vignette, all its statistics) until the threshold or the horizon. The evidence is
+ * (1/S) Σ_s combine_v(M^{s,v}), kept up to date through each statistic's product and sum.
  */
 function simulateReach(
   streams: readonly StreamState[],
-  combine: EventCombination,
+  layout: Layout,
   threshold: number,
   s: Settings,
   rng: Rng,
   generator: (fit: PatternFit, resolution: number, rng: Rng) => () => number,
 ): Float64Array {
-  const V = streams.length;
+  const { vignettes: V, statistics: S, combine } = layout;
   const counts = new Float64Array(s.horizon);
   const fixed = generator === patternSampler ? streams.map((x) => patternSampler(x.fit, x.bettor.resolution, rng)) : null;
+  const product = new Float64Array(S);
+  const sum = new Float64Array(S);
   for (let d = 0; d < s.draws; d++) {
     const bettors = streams.map((x) => x.bettor.clone());
     const levels = streams.map((x) => x.evidence);
     const next = fixed ?? streams.map((x) => generator(x.fit, x.bettor.resolution, rng));
-    let product = levels.reduce((a, v) => a * v, 1);
-    let sum = levels.reduce((a, v) => a + v, 0);
+    product.fill(1);
+    sum.fill(V);
+    streams.forEach((x, i) => {
+      product[x.statistic] *= levels[i];
+      sum[x.statistic] += levels[i] - 1;
+    });
     let hit = 0;
     for (let j = 1; j <= s.horizon && hit === 0; j++) {
-      for (let v = 0; v < V; v++) {
-        const k = next[v]();
-        const e = bettors[v].value(k);
-        bettors[v].observe(k);
-        sum += levels[v] * e - levels[v];
-        levels[v] *= e;
-        product *= e;
-        if ((combine === 'product' ? product : sum / V) >= threshold) {
-          hit = j;
-          break;
+      for (let v = 0; v < V && hit === 0; v++) {
+        for (let i = 0; i < streams.length; i++) {
+          if (streams[i].vignette !== v) continue;
+          const k = next[i]();
+          const e = bettors[i].value(k);
+          bettors[i].observe(k);
+          const st = streams[i].statistic;
+          sum[st] += levels[i] * e - levels[i];
+          product[st] *= e;
+          levels[i] *= e;
         }
+        let value = 0;
+        for (let st = 0; st < S; st++) value += combineLevels(combine, product[st], sum[st], V) / S;
+        if (value >= threshold) hit = j;
       }
     }
     if (hit > 0) counts[hit - 1]++;
@@ -284,7 +313,7 @@ interface Unit {
 function advise(
   what: { readonly runsSoFar: number; readonly evidence: number; readonly established: boolean },
   streams: readonly StreamState[],
-  combine: EventCombination,
+  layout: Layout,
   alpha: number,
   s: Settings,
   unit: Unit,
@@ -323,7 +352,7 @@ function advise(
     };
   }
   const rng = createRng(s.seed);
-  const reach = simulateReach(streams, combine, threshold, s, rng, patternSampler);
+  const reach = simulateReach(streams, layout, threshold, s, rng, patternSampler);
   let m: number | null = null;
   for (let j = 0; j < s.horizon; j++) {
     if (reach[j] >= s.target) {
@@ -332,7 +361,7 @@ function advise(
     }
   }
   const within = reach[s.horizon - 1];
-  const posterior = within < s.futileBelow ? simulateReach(streams, combine, threshold, s, rng, posteriorPatternSampler)[s.horizon - 1] : null;
+  const posterior = within < s.futileBelow ? simulateReach(streams, layout, threshold, s, rng, posteriorPatternSampler)[s.horizon - 1] : null;
   const futile = posterior !== null && posterior < s.futileBelow;
   const few = what.runsSoFar < 5 ? ` This is extrapolated from only ${what.runsSoFar} run${what.runsSoFar === 1 ? '' : 's'}, so treat it as rough.` : '';
   const now = `${unit.scope}: the evidence against the simulation stands at ${fmt(what.evidence)} after ${what.runsSoFar} run${what.runsSoFar === 1 ? '' : 's'} (it starts at 1 and must reach ${fmt(threshold)} to establish a discrepancy).`;
@@ -366,7 +395,7 @@ function advise(
 }
 
 /**
- * Advice for one vignette from its runs' p-values so far, in run order (module comment).
+ * Advice for one stream of p-values (one statistic, or a single p per run), in run order (module comment).
  */
 export function adviseRuns(pvalues: ArrayLike<number>, alpha: number, options: AdviceOptions = {}): RunAdvice {
   const s = settingsOf(alpha, options);
@@ -374,8 +403,8 @@ export function adviseRuns(pvalues: ArrayLike<number>, alpha: number, options: A
   const threshold = 1 / alpha;
   const state = replay(pvalues, s.strategy, resolution, threshold);
   const what = { runsSoFar: pvalues.length, evidence: state.evidence, established: state.established };
-  const streams = pvalues.length > 0 ? [{ bettor: state.bettor, evidence: state.evidence, fit: fitPattern(pvalues, resolution, s.priorDf) }] : [];
-  return advise(what, streams, 'product', alpha, s, { one: 'run', many: 'runs', scope: 'This vignette' });
+  const streams = pvalues.length > 0 ? [{ bettor: state.bettor, evidence: state.evidence, fit: fitPattern(pvalues, resolution, s.priorDf), vignette: 0, statistic: 0 }] : [];
+  return advise(what, streams, { vignettes: 1, statistics: 1, combine: 'product' }, alpha, s, { one: 'run', many: 'runs', scope: 'This vignette' });
 }
 
 export interface EventAdviceOptions extends AdviceOptions {
@@ -386,14 +415,72 @@ export interface EventAdviceOptions extends AdviceOptions {
 }
 
 export interface EventAdvice {
-  /** Advice for the event martingale, counted in rounds (one more run of every vignette). */
+  /** Advice for the event's evidence, counted in rounds (one more run of every vignette). */
   readonly event: RunAdvice;
   readonly streams: ReadonlyArray<{ readonly stream: string; readonly advice: RunAdvice }>;
 }
 
+type Triple = Pick<StreamRun, 'l2' | 'score' | 'residual'>;
+
+/** Replay runs (arrival order) through one bettor per vignette and statistic, as ./evidence/event.ts does. */
+function replayEvent(
+  runs: readonly StreamRun[],
+  names: readonly string[],
+  combine: EventCombination,
+  strategy: EvidenceStrategy,
+  resolutionOf: (v: string) => number,
+  threshold: number,
+): { bettors: Map<string, Bettor[]>; levels: Map<string, number[]>; evidence: number; established: boolean } {
+  const S = STATISTICS.length;
+  const V = names.length;
+  const bettors = new Map(names.map((v) => [v, STATISTICS.map(() => createBettor(strategy, resolutionOf(v)))] as const));
+  const levels = new Map(names.map((v) => [v, STATISTICS.map(() => 1)] as const));
+  const product = new Float64Array(S).fill(1);
+  const sum = new Float64Array(S).fill(V);
+  let evidence = 1;
+  let established = false;
+  for (const r of runs) {
+    const bs = bettors.get(r.stream);
+    const ls = levels.get(r.stream);
+    if (!bs || !ls) throw new RangeError(`adviseEvent: unknown vignette ${r.stream}`);
+    evidence = 0;
+    STATISTICS.forEach((name, st) => {
+      const k = latticeIndex(r[name], bs[st].resolution);
+      const e = bs[st].value(k);
+      bs[st].observe(k);
+      sum[st] += ls[st] * e - ls[st];
+      product[st] *= e;
+      ls[st] *= e;
+      evidence += combineLevels(combine, product[st], sum[st], V) / S;
+    });
+    if (evidence >= threshold) established = true;
+  }
+  return { bettors, levels, evidence, established };
+}
+
+/**
+ * Advice for one vignette from its runs' three p-values, in run order: its evidence is the average
+ * of the three statistics' martingales (./evidence/event.ts).
+ */
+export function adviseVignette(runs: readonly Triple[], alpha: number, options: AdviceOptions = {}): RunAdvice {
+  const s = settingsOf(alpha, options);
+  const resolution = options.resolution ?? DEFAULT_RESOLUTION;
+  const threshold = 1 / alpha;
+  const tagged = runs.map((r) => ({ stream: 'v', p: 1, l2: r.l2, score: r.score, residual: r.residual }));
+  const state = replayEvent(tagged, ['v'], 'product', s.strategy, () => resolution, threshold);
+  const bs = state.bettors.get('v') ?? [];
+  const ls = state.levels.get('v') ?? [];
+  const streams: StreamState[] =
+    runs.length > 0
+      ? STATISTICS.map((name, st) => ({ bettor: bs[st], evidence: ls[st], fit: fitPattern(runs.map((r) => r[name]), resolution, s.priorDf), vignette: 0, statistic: st }))
+      : [];
+  const what = { runsSoFar: runs.length, evidence: state.evidence, established: state.established };
+  return advise(what, streams, { vignettes: 1, statistics: STATISTICS.length, combine: 'product' }, alpha, s, { one: 'run', many: 'runs', scope: 'This vignette' });
+}
+
 /**
  * Advice per vignette and for the whole event from runs in arrival order (module comment). The
- * event's evidence is replayed exactly as ./evidence.ts eventEvidence computes it.
+ * event's evidence is replayed exactly as ./evidence/event.ts eventEvidence computes it.
  */
 export function adviseEvent(runs: readonly StreamRun[], alpha: number, options: EventAdviceOptions = {}): EventAdvice {
   const s = settingsOf(alpha, options);
@@ -402,38 +489,19 @@ export function adviseEvent(runs: readonly StreamRun[], alpha: number, options: 
   for (const r of runs) if (!names.includes(r.stream)) names.push(r.stream);
   const resolutionOf = (v: string): number => options.resolutions?.[v] ?? options.resolution ?? DEFAULT_RESOLUTION;
   const threshold = 1 / alpha;
-  const all = runs.map((r) => r.p);
-  // The event martingale in arrival order.
-  const bettors = new Map(names.map((v) => [v, createBettor(s.strategy, resolutionOf(v))] as const));
-  const level = new Map<string, number>(names.map((v) => [v, 1]));
-  let product = 1;
-  let sum = names.length;
-  let evidence = 1;
-  let established = false;
-  for (const r of runs) {
-    const b = bettors.get(r.stream);
-    const before = level.get(r.stream);
-    if (!b || before === undefined) throw new RangeError(`adviseEvent: unknown vignette ${r.stream}`);
-    const k = latticeIndex(r.p, b.resolution);
-    const e = b.value(k);
-    b.observe(k);
-    level.set(r.stream, before * e);
-    sum += before * e - before;
-    product *= e;
-    evidence = combine === 'product' ? product : sum / names.length;
-    if (evidence >= threshold) established = true;
-  }
-  const states: StreamState[] = names.map((v) => {
-    const ps = runs.filter((r) => r.stream === v).map((r) => r.p);
-    const b = bettors.get(v);
-    if (!b) throw new RangeError(`adviseEvent: unknown vignette ${v}`);
-    // A vignette without runs yet borrows the pattern of all the event's runs.
-    return { bettor: b, evidence: level.get(v) ?? 1, fit: fitPattern(ps.length > 0 ? ps : all, b.resolution, s.priorDf) };
+  const replayed = replayEvent(runs, names, combine, s.strategy, resolutionOf, threshold);
+  const states: StreamState[] = names.flatMap((v, vi) => {
+    const mine = runs.filter((r) => r.stream === v);
+    const from = mine.length > 0 ? mine : runs; // a vignette without runs yet borrows the pattern of all the event's runs
+    const bs = replayed.bettors.get(v);
+    const ls = replayed.levels.get(v);
+    if (!bs || !ls) throw new RangeError(`adviseEvent: unknown vignette ${v}`);
+    return STATISTICS.map((name, st) => ({ bettor: bs[st], evidence: ls[st], fit: fitPattern(from.map((r) => r[name]), bs[st].resolution, s.priorDf), vignette: vi, statistic: st }));
   });
   const streamAdvice = names.map((stream, i) => ({
     stream,
-    advice: adviseRuns(
-      runs.filter((r) => r.stream === stream).map((r) => r.p),
+    advice: adviseVignette(
+      runs.filter((r) => r.stream === stream),
       alpha,
       { ...options, resolution: resolutionOf(stream), seed: s.seed + 7919 * (i + 1) },
     ),
@@ -443,5 +511,6 @@ export function adviseEvent(runs: readonly StreamRun[], alpha: number, options: 
     many: `rounds (one run of each of the ${names.length} vignettes per round)`,
     scope: 'The event',
   };
-  return { event: advise({ runsSoFar: runs.length, evidence, established }, states, combine, alpha, s, unit), streams: streamAdvice };
+  const layout: Layout = { vignettes: names.length, statistics: STATISTICS.length, combine };
+  return { event: advise({ runsSoFar: runs.length, evidence: replayed.evidence, established: replayed.established }, runs.length > 0 ? states : [], layout, alpha, s, unit), streams: streamAdvice };
 }

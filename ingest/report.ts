@@ -147,7 +147,9 @@ export const assessmentReportSchema = z.object({
   sequential: z
     .object({
       threshold: z.number().describe('1/alpha'),
-      evidence: z.number().describe("the event's test martingale after the last run (the average of the vignettes' martingales)"),
+      evidence: z
+        .number()
+        .describe("the event's evidence after the last run: per statistic (l2, score, residual), half the product and half the average of the vignettes' test martingales, averaged over the three statistics (a test martingale)"),
       established: z.boolean(),
       crossedAt: z.number().nullable().describe('the run (in completion order, 1-based) at which the evidence reached 1/alpha'),
       vignettes: z.array(z.object({ id: z.string(), evidence: z.number(), established: z.boolean(), runs: z.number().int(), advice: z.string() })),

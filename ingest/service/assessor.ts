@@ -13,7 +13,7 @@ import { createRequire } from 'node:module';
 import { pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import type { RawTrack } from '../../engine/types.js';
-import type { StreamRun } from '../../engine/evidence.js';
+import type { StreamRun } from '../../engine/evidence/index.js';
 import { Compute, type AssessResult, type ComputeConfig, type EvidenceResult, type FitResult } from './compute.js';
 
 export type WorkerRequest =

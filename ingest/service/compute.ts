@@ -6,7 +6,7 @@
 import { assessRun, baselineEnvelope, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from '../../engine/assess.js';
 import { adviseEvent, type RunAdvice } from '../../engine/advisor.js';
 import type { Diagnosis } from '../../engine/diagnosis.js';
-import { DEFAULT_STRATEGY, eventEvidence, type StreamRun } from '../../engine/evidence.js';
+import { DEFAULT_STRATEGY, eventEvidence, type CombinedEvidence, type StreamRun } from '../../engine/evidence/index.js';
 import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary, type RunOutcome } from '../../engine/event.js';
 import { practicalDifference, type ChannelDifference } from '../../engine/practical.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
@@ -50,12 +50,40 @@ export interface AssessResult extends Omit<RunOutcome, 'error'> {
   readonly ms: number;
 }
 
+/** How the service combines the vignettes' martingales for the event (see Compute.evidence). */
+export const EVENT_COMBINATION = 'hedge' as const;
+
+/** One statistic's evidence now: its current value and the run at which it reached 1/alpha. */
+export interface StatisticEvidenceView {
+  readonly current: number;
+  readonly established: boolean;
+  readonly crossedAt: number | null;
+}
+
+export type StatisticEvidenceViews = { readonly l2: StatisticEvidenceView; readonly score: StatisticEvidenceView; readonly residual: StatisticEvidenceView };
+
 /** Sequential evidence and run-count advice, in plain arrays for the state view. */
 export interface EvidenceResult {
   readonly threshold: number;
-  readonly event: { readonly current: number; readonly established: boolean; readonly crossedAt: number | null; readonly martingale: number[] };
+  /** The event's evidence: the average over statistics of the vignettes' martingales combined. */
+  readonly event: { readonly current: number; readonly established: boolean; readonly crossedAt: number | null; readonly martingale: number[]; readonly statistics: StatisticEvidenceViews };
   readonly eventAdvice: AdviceView;
-  readonly streams: ReadonlyArray<{ readonly vignette: string; readonly current: number; readonly established: boolean; readonly crossedAt: number | null; readonly runs: number; readonly nextRunNeeds: number | null; readonly advice: AdviceView }>;
+  readonly streams: ReadonlyArray<{
+    readonly vignette: string;
+    /** The vignette's evidence: the average of its three statistics' martingales. */
+    readonly current: number;
+    readonly established: boolean;
+    readonly crossedAt: number | null;
+    readonly runs: number;
+    readonly nextRunNeeds: number | null;
+    readonly statistics: StatisticEvidenceViews;
+    readonly advice: AdviceView;
+  }>;
+}
+
+function statisticViews(s: { readonly l2: CombinedEvidence; readonly score: CombinedEvidence; readonly residual: CombinedEvidence }): StatisticEvidenceViews {
+  const one = (e: CombinedEvidence): StatisticEvidenceView => ({ current: e.current, established: e.established, crossedAt: e.crossedAt });
+  return { l2: one(s.l2), score: one(s.score), residual: one(s.residual) };
 }
 
 export interface AdviceView {
@@ -182,21 +210,25 @@ export class Compute {
   }
 
   /**
-   * Anytime-valid evidence per vignette and for the event from the final p-values in the order the
-   * runs completed, and the run-count advice (engine/evidence.ts, engine/advisor.ts). The lattice of
-   * each vignette's p-values is its number of simulated runs + 1.
+   * Anytime-valid evidence per statistic, per vignette and for the event from the final p-values
+   * (each run's three per-statistic p-values, and its overall one) in the order the runs completed,
+   * and the run-count advice (engine/evidence/, engine/advisor.ts). The lattice of each vignette's
+   * p-values is its number of simulated runs + 1 (continuous p-values are rounded up to it).
    */
   evidence(runs: readonly StreamRun[], alpha: number): EvidenceResult {
     const streams = this.config.vignettes.map((v) => v.id);
     const resolutions = Object.fromEntries(this.config.vignettes.map((v) => [v.id, Math.max(2, (this.vignettes.get(v.id)?.baseline?.curves.length ?? 200) + 1)]));
-    // The event's evidence is the average of the vignettes' test martingales over the plan's
-    // vignettes (fixed before the event): itself a test martingale, and not dragged down by the
-    // agreeing conditions when a discrepancy is confined to a few (engine/evidence.ts, 'average').
-    const ev = eventEvidence(runs, alpha, DEFAULT_STRATEGY, { streams, resolutions, combine: 'average' });
-    const advice = adviseEvent(runs, alpha, { streams, resolutions, combine: 'average', draws: 400 });
+    // The event's evidence, per statistic, is the hedge over the plan's vignettes (fixed before the
+    // event): half the product of the vignettes' martingales (fast when a discrepancy is shared by
+    // many conditions) and half their average (not dragged down by the agreeing conditions when it
+    // is confined to a few); then the average over the three statistics. Each is a test martingale
+    // (engine/evidence/event.ts). Measured by `npm run bench:evidence`: with 6 of 12 vignettes
+    // shifted, the average alone needs about 3 times as many runs as the hedge.
+    const ev = eventEvidence(runs, alpha, DEFAULT_STRATEGY, { streams, resolutions, combine: EVENT_COMBINATION });
+    const advice = adviseEvent(runs, alpha, { streams, resolutions, combine: EVENT_COMBINATION, draws: 400 });
     return {
       threshold: ev.threshold,
-      event: { current: ev.current, established: ev.established, crossedAt: ev.crossedAt, martingale: Array.from(ev.martingale) },
+      event: { current: ev.current, established: ev.established, crossedAt: ev.crossedAt, martingale: Array.from(ev.martingale), statistics: statisticViews(ev.statistics) },
       eventAdvice: adviceView(advice.event),
       streams: ev.streams.map((s) => {
         const a = advice.streams.find((x) => x.stream === s.stream);
@@ -207,6 +239,7 @@ export class Compute {
           crossedAt: s.evidence.crossedAt,
           runs: s.evidence.martingale.length,
           nextRunNeeds: s.evidence.nextRunNeeds,
+          statistics: statisticViews(s.statistics),
           advice: a ? adviceView(a.advice) : { additionalRuns: null, probability: 0, futile: false, established: false, message: 'no runs yet' },
         };
       }),

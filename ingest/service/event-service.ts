@@ -596,9 +596,13 @@ export class EventService {
     this.changes$.next({ kind: 'run', key: t.key });
   }
 
-  /** Recompute the sequential evidence from every final p-value, in completion order. */
+  /** Recompute the sequential evidence from every final run's p-values (per statistic and overall), in completion order. */
   private refreshEvidence(): void {
-    const runs = this.completionOrder.flatMap((t) => (t.report?.overall ? [{ stream: t.vignette, p: t.report.overall.pValue }] : []));
+    const runs = this.completionOrder.flatMap((t) => {
+      const r = t.report;
+      if (!r?.overall || !r.statistics) return [];
+      return [{ stream: t.vignette, p: r.overall.pValue, l2: r.statistics.l2.pValue, score: r.statistics.score.pValue, residual: r.statistics.residual.pValue }];
+    });
     if (runs.length === 0) return;
     this.track(
       this.assessor.evidence(runs, this.plan.analysis.alpha).then((e) => {

@@ -1,14 +1,19 @@
 /**
  * Run-count advisor (engine/advisor.ts). Sources beside each check: the advisor's answers are
- * checked against independent simulation, from its own fitted pattern (pure Monte Carlo error,
- * exact binomial bands from test/support/compare.ts) and from the true pattern that produced the
- * runs (real engine p-values: engine/assess.ts on test/support/synthetic.ts tracks). Seeded.
+ * checked against simulations written here, independently of the advisor's code: from the
+ * probit-normal pattern of its method, computed with jstat (npm, a general-purpose reference library)
+ * and drawn by Box–Muller (pure Monte Carlo error, normal bands), and from the true pattern that
+ * produced the runs (real engine p-values: engine/assess.ts on test/support/synthetic.ts tracks).
+ * Seeded.
  */
+import jStat from 'jstat';
 import { describe, expect, it } from 'vitest';
-import { adviseEvent, adviseRuns, fitPattern, MAX_DRAWS, patternSampler } from '../../engine/advisor.js';
-import { sequentialEvidence, type StreamRun } from '../../engine/evidence.js';
+import { adviseEvent, adviseRuns, fitPattern, MAX_DRAWS } from '../../engine/advisor.js';
+import { eventEvidence, sequentialEvidence, type StreamRun } from '../../engine/evidence/index.js';
 import { createRng } from '../../engine/rng.js';
 import { enginePool, LATTICE, latticeNull, poolSampler, quantile } from '../support/alternatives.js';
+import { expectClose } from '../support/compare.js';
+import { statisticPool } from '../support/evidence-power.js';
 
 const ALPHA = 0.05;
 const Z99 = 2.5758293035489004; // Φ⁻¹(0.995)
@@ -105,15 +110,30 @@ describe('a clearly discrepant pattern (real engine p-values, level shift 5 m, s
     }
   });
 
-  it('the stated probability is what the advisor\'s own pattern gives, within Monte Carlo error (independent re-simulation)', () => {
+  it('the stated probability matches a direct simulation of the method\'s probit-normal pattern, written here (not the advisor\'s sampler)', () => {
     const history = [quantile(sorted, 0.75), quantile(sorted, 0.25)];
     const a = adviseRuns(history, ALPHA, { resolution: LATTICE, draws: REPS, seed: 3 });
     const m = a.additionalRuns ?? 0;
-    const draw = patternSampler(fitPattern(history, LATTICE), LATTICE, createRng(99));
+    // The pattern by its definition (engine/advisor.ts, step 2), with jstat's normal quantile:
+    // z_i = Φ⁻¹(1 − (⌈p_i L⌉ − ½)/L), μ = z̄, σ² = (ν₀ + Σ (z_i − z̄)²)/(ν₀ + n − 1), ν₀ = 1.
+    const z = history.map((p) => jStat.normal.inv(1 - (Math.ceil(p * LATTICE - 1e-9) - 0.5) / LATTICE, 0, 1));
+    const mu = z.reduce((x, y) => x + y, 0) / z.length;
+    const sigma = Math.sqrt((1 + z.reduce((x, y) => x + (y - mu) ** 2, 0)) / (1 + z.length - 1));
+    const fit = fitPattern(history, LATTICE);
+    expectClose(fit.mu, mu, 1e-9, 1e-12, 'μ̂');
+    expectClose(fit.sigma, sigma, 1e-9, 0, 'σ̂');
+    // Future p-values p = Φ(−(μ + σ Z)), Z ~ N(0, 1) by Box–Muller (Box & Muller, Ann. Math. Statist.
+    // 29(2):610–611, 1958) from a separate seeded stream, Φ from jstat; the evidence of each
+    // continuation from sequentialEvidence, which rounds p up to the lattice as the advisor does.
+    const rng = createRng(99);
+    const draw = (): number => {
+      const zz = Math.sqrt(-2 * Math.log(1 - rng.uniform())) * Math.cos(2 * Math.PI * rng.uniform());
+      return Math.max(Number.MIN_VALUE, jStat.normal.cdf(-(mu + sigma * zz), 0, 1));
+    };
     const reps = 4000;
-    const rate = reachRate(history, m, () => draw() / LATTICE, reps);
+    const rate = reachRate(history, m, draw, reps);
     const tol = mcHalfWidth(a.probability, REPS, reps);
-    console.info(`advisor's own pattern, fresh seed: ${(100 * rate).toFixed(1)} % vs stated ${(100 * a.probability).toFixed(1)} % (±${(100 * tol).toFixed(1)} %)`);
+    console.info(`the method's pattern (μ = ${mu.toFixed(3)}, σ = ${sigma.toFixed(3)}) simulated here: ${(100 * rate).toFixed(1)} % within ${m} runs vs stated ${(100 * a.probability).toFixed(1)} % (±${(100 * tol).toFixed(1)} %)`);
     expect(Math.abs(rate - a.probability)).toBeLessThanOrEqual(tol);
   });
 
@@ -174,25 +194,28 @@ describe('edges and the event', () => {
     expect(() => adviseRuns(h, 1.5)).toThrow(RangeError);
   });
 
-  it('an event of three vignettes, one discrepant: per-vignette advice and the event in rounds', () => {
+  it('an event of three vignettes, one discrepant: per-vignette advice and the event in rounds; the replayed evidence is eventEvidence\'s', () => {
     const rng = createRng(31);
-    // A small discrepant pool from the same engine (another baseline, 40 runs).
-    const disc = poolSampler(enginePool({ kind: 'shift', size: 5 }, 40, 778), rng);
+    // A small discrepant pool from the same engine (another baseline, 40 runs), three smoothed p-values per run.
+    const disc = statisticPool({ kind: 'shift', size: 5 }, 40, 778);
+    const nullRun = (stream: string): StreamRun => ({ stream, p: latticeNull(rng), l2: 1 - rng.uniform(), score: 1 - rng.uniform(), residual: 1 - rng.uniform() });
     const runs: StreamRun[] = [];
     for (let round = 0; round < 2; round++) {
-      runs.push({ stream: 'S1-L1', p: latticeNull(rng) });
-      runs.push({ stream: 'S2-L1', p: latticeNull(rng) });
-      runs.push({ stream: 'S3-L1', p: disc() });
+      runs.push(nullRun('S1-L1'));
+      runs.push(nullRun('S2-L1'));
+      runs.push({ stream: 'S3-L1', ...disc[rng.int(disc.length)] });
     }
-    const advice = adviseEvent(runs, ALPHA, { resolution: LATTICE, draws: 1000, seed: 2 });
+    const advice = adviseEvent(runs, ALPHA, { resolution: LATTICE, draws: 1000, seed: 2, combine: 'average' });
     for (const s of advice.streams) console.info(`${s.stream}: ${s.advice.message}`);
     console.info(`event: ${advice.event.message}`);
     expect(advice.streams.map((s) => s.stream)).toEqual(['S1-L1', 'S2-L1', 'S3-L1']);
     expect(advice.event.runsSoFar).toBe(6);
+    const ev = eventEvidence(runs, ALPHA, undefined, { resolution: LATTICE, combine: 'average' });
+    expectClose(advice.event.evidence, ev.current, 1e-12, 0, 'event evidence replayed by the advisor');
+    ev.streams.forEach((s, i) => expectClose(advice.streams[i].advice.evidence, s.evidence.current, 1e-12, 0, `${s.stream} evidence replayed by the advisor`));
     expect(advice.event.message).toMatch(/^The event/);
     if (!advice.event.established) expect(advice.event.message).toMatch(/round/);
     const s3 = advice.streams[2].advice;
     expect(s3.established || (s3.additionalRuns !== null && s3.additionalRuns <= 10)).toBe(true);
   });
 });
-

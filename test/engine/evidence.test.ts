@@ -1,9 +1,12 @@
 /**
- * Anytime-valid evidence across runs (engine/evidence.ts). Sources beside each check: analytic
- * results (calibrator values and integrals, the Abel-summation lemma), Ville's inequality checked by
- * simulation with exact binomial bands (test/support/compare.ts), and the real engine's p-values
- * (engine/assess.ts on test/support/synthetic.ts tracks) for power. All data are synthetic and seeded.
+ * Anytime-valid evidence across runs (engine/evidence/). Sources beside each check: analytic
+ * results (calibrator values and integrals, the Abel-summation lemma, the martingale identity
+ * E[M_n | past] = M_{n−1}), Ville's inequality checked by simulation against one-sided binomial
+ * bounds from jstat (npm, a general-purpose reference library) with the repetition count computed
+ * for a stated power, and the real engine's p-values (engine/assess.ts on test/support/synthetic.ts
+ * tracks) for runs to a decision. All data are synthetic and seeded.
  */
+import jStat from 'jstat';
 import { describe, expect, it } from 'vitest';
 import { combinePValues } from '../../engine/combine.js';
 import {
@@ -22,13 +25,15 @@ import {
   shaferCalibrator,
   vovkWangCalibrator,
   type CalibratorSpec,
+  type EventCombination,
   type EvidenceStrategy,
   type StreamRun,
-} from '../../engine/evidence.js';
+} from '../../engine/evidence/index.js';
 import { normalCdf } from '../../engine/normal.js';
 import { createRng, type Rng } from '../../engine/rng.js';
-import { enginePool, fisherDesignRuns, fisherRetestedCrossing, LATTICE, latticeNull, poolSampler, quantile, sharedBaselineNull } from '../support/alternatives.js';
-import { binomialInterval, expectClose } from '../support/compare.js';
+import { fisherRetestedCrossing, LATTICE, latticeNull, sharedBaselineNull } from '../support/alternatives.js';
+import { expectClose } from '../support/compare.js';
+import { fixedDesignRuns, runsToDecision, singleRunPower, statisticPool, type RunPValues } from '../support/evidence-power.js';
 
 const ALPHA = 0.05;
 const ADAPTIVE: EvidenceStrategy = { kind: 'adaptive' };
@@ -127,7 +132,7 @@ describe('calibrators: analytic values, integral 1, monotone', () => {
 });
 
 describe('the lattice: exact calibrators on {1/L, …, 1}', () => {
-  it.each(SPECS)('%s: lattice form is non-increasing, averages to 1 and dominates e(k/L) (lemma in engine/evidence.ts)', (_name, spec) => {
+  it.each(SPECS)('%s: lattice form is non-increasing, averages to 1 and dominates e(k/L) (lemma in engine/evidence/calibrators.ts)', (_name, spec) => {
     for (const L of [20, 201, 1000]) {
       const f = latticeCalibrator(spec, L);
       let sum = 0;
@@ -268,7 +273,7 @@ describe('sequentialEvidence: the record of one vignette', () => {
 });
 
 describe('the betting strategies keep every bet a valid lattice calibrator', () => {
-  it('before every run: non-increasing, mean 1 over the lattice, value(k) = table()[k] (lemma; engine/evidence.ts §3)', () => {
+  it('before every run: non-increasing, mean 1 over the lattice, value(k) = table()[k] (lemma; engine/evidence/bettors.ts)', () => {
     const rng = createRng(23);
     for (const strategy of [ADAPTIVE, MIXTURE, { kind: 'adaptive', shrinkage: 1, floor: 0 } as const]) {
       const b = createBettor(strategy, 201);
@@ -294,11 +299,44 @@ describe('the betting strategies keep every bet a valid lattice calibrator', () 
 });
 
 // ---------------------------------------------------------------------------------------------
-// Validity under the null: runs keep being added (up to 50) until the evidence reaches 1/α.
+// Validity under the null: runs keep being added (up to MAX_RUNS) until the evidence reaches 1/α.
 
-const EVENTS = 2000;
 const MAX_RUNS = 50;
-const band = binomialInterval(EVENTS, ALPHA, 0.99);
+
+/**
+ * How many seeded events a false-alarm check needs, by the exact one-sided binomial law (jstat):
+ * the check passes when the number of false alarms X in n events is ≤ c, with c the smallest count
+ * such that P(X > c | rate α) ≤ 1 % (a valid procedure fails with probability ≤ 1 %), and n the
+ * smallest multiple of 10 such that P(X > c | rate 2α) ≥ 99 % (a procedure whose false-alarm rate
+ * is 2α, a factor-2 miscalibration, fails with probability ≥ 99 %). For α = 0.05 this gives
+ * n = 590, c = 42 (printed by the first check below).
+ */
+function falseAlarmDesign(alpha: number): { reps: number; limit: number; falseFail: number; power: number } {
+  for (let n = 100; n <= 5000; n += 10) {
+    let c = 0;
+    while (1 - jStat.binomial.cdf(c, n, alpha) > 0.01) c++;
+    const power = 1 - jStat.binomial.cdf(c, n, 2 * alpha);
+    if (power >= 0.99) return { reps: n, limit: c, falseFail: 1 - jStat.binomial.cdf(c, n, alpha), power };
+  }
+  throw new Error('falseAlarmDesign: no n up to 5000');
+}
+
+const DESIGN = falseAlarmDesign(ALPHA);
+const EVENTS = DESIGN.reps;
+
+/** A null p-value as a smoothed conformal p-value is: Uniform(0, 1), here on (0, 1]. */
+const uniformNull = (rng: Rng): number => 1 - rng.uniform();
+
+/**
+ * Three null p-values of one run, dependent as the statistics of one run are (l2 and residual move
+ * together): a Gaussian copula, z_l2 = a, z_score = 0.5 a + √0.75 b, z_residual = 0.8 a + 0.6 c,
+ * p = Φ(z) — each exactly Uniform(0, 1), jointly dependent.
+ */
+function nullTriple(rng: Rng): { l2: number; score: number; residual: number } {
+  const a = rng.normal();
+  const clamp = (p: number): number => Math.min(1, Math.max(Number.MIN_VALUE, p));
+  return { l2: clamp(normalCdf(a)), score: clamp(normalCdf(0.5 * a + Math.sqrt(0.75) * rng.normal())), residual: clamp(normalCdf(0.8 * a + 0.6 * rng.normal())) };
+}
 
 function sequentialFalseAlarms(strategy: EvidenceStrategy, nextP: (rng: Rng) => () => number, seed: number): number {
   const rng = createRng(seed);
@@ -318,163 +356,233 @@ function sequentialFalseAlarms(strategy: EvidenceStrategy, nextP: (rng: Rng) => 
 
 const pct = (k: number, n: number): string => `${((100 * k) / n).toFixed(2)} %`;
 
-describe(`validity under the null: ${EVENTS} events, runs added until the evidence reaches 1/α (at most ${MAX_RUNS})`, () => {
-  const independent = (rng: Rng) => () => latticeNull(rng);
-
-  it(`adaptive, power-mixture and Vovk–Wang: false alarms ≤ α (Ville), binomial 99 % band upper end ${band.hi} of ${EVENTS}`, () => {
-    const counts = {
-      adaptive: sequentialFalseAlarms(ADAPTIVE, independent, 101),
-      powerMixture: sequentialFalseAlarms(MIXTURE, independent, 101),
-      vovkWang: sequentialFalseAlarms(VW, independent, 101),
-    };
+describe(`validity under the null: ${EVENTS} events each, runs added until the evidence reaches 1/α (at most ${MAX_RUNS})`, () => {
+  it(`one stream (one statistic of one vignette): adaptive, power-mixture and Vovk–Wang stay ≤ ${DESIGN.limit} false alarms of ${EVENTS}`, () => {
     console.info(
-      `null, p = k/201 (k uniform), up to ${MAX_RUNS} runs, α = ${ALPHA}: false alarms adaptive ${counts.adaptive}/${EVENTS} (${pct(counts.adaptive, EVENTS)}), ` +
-        `power-mixture ${counts.powerMixture}/${EVENTS} (${pct(counts.powerMixture, EVENTS)}), Vovk–Wang ${counts.vovkWang}/${EVENTS} (${pct(counts.vovkWang, EVENTS)}); band upper end ${band.hi}`,
+      `false-alarm check design (exact binomial, jstat): ${EVENTS} events, pass if ≤ ${DESIGN.limit} alarms; ` +
+        `a valid procedure (rate α = ${ALPHA}) fails with probability ${DESIGN.falseFail.toFixed(4)}, one at 2α with probability ${DESIGN.power.toFixed(4)}`,
     );
-    for (const [k, v] of Object.entries(counts)) expect(v, k).toBeLessThanOrEqual(band.hi);
+    expect(DESIGN.falseFail).toBeLessThanOrEqual(0.01);
+    expect(DESIGN.power).toBeGreaterThanOrEqual(0.99);
+    const laws = { 'smoothed (continuous)': (rng: Rng) => () => uniformNull(rng), 'rank (p = k/201)': (rng: Rng) => () => latticeNull(rng) };
+    for (const [law, draw] of Object.entries(laws)) {
+      const counts = { adaptive: sequentialFalseAlarms(ADAPTIVE, draw, 101), powerMixture: sequentialFalseAlarms(MIXTURE, draw, 102), vovkWang: sequentialFalseAlarms(VW, draw, 103) };
+      console.info(`null ${law}, up to ${MAX_RUNS} runs: ${Object.entries(counts).map(([k, v]) => `${k} ${v}/${EVENTS} (${pct(v, EVENTS)})`).join(', ')}; limit ${DESIGN.limit}`);
+      for (const [k, v] of Object.entries(counts)) expect(v, `${law}: ${k}`).toBeLessThanOrEqual(DESIGN.limit);
+    }
+  });
+
+  it('a deliberately miscalibrated stream (every bet doubled) is caught by the same check (the check has power)', () => {
+    // Every factor doubled (each bet then averages 2 over the lattice, not 1): after n runs the
+    // process is 2ⁿ times the valid martingale. The check must fail it. (A factor 2 in the level
+    // alone, i.e. a threshold of 1/(2α), moves a conservative procedure's rate by less than α and
+    // is caught exactly by the martingale identity below, not by counting alarms.)
+    const rng = createRng(104);
+    let alarms = 0;
+    for (let e = 0; e < EVENTS; e++) {
+      const stream = createEvidenceStream(ALPHA, ADAPTIVE, { resolution: LATTICE });
+      for (let r = 0; r < MAX_RUNS; r++) {
+        if (stream.push(uniformNull(rng)).evidence * 2 ** (r + 1) >= 1 / ALPHA) {
+          alarms++;
+          break;
+        }
+      }
+    }
+    console.info(`doubled bets under the null: ${alarms}/${EVENTS} (${pct(alarms, EVENTS)}); limit ${DESIGN.limit}`);
+    expect(alarms).toBeGreaterThan(DESIGN.limit);
   });
 
   it('Fisher re-tested after every run on the same kind of events: false alarms far above α', () => {
-    const rng = createRng(101);
+    const rng = createRng(105);
     let alarms = 0;
     let after10 = 0;
     for (let e = 0; e < EVENTS; e++) {
-      const ps = Array.from({ length: MAX_RUNS }, () => latticeNull(rng));
+      const ps = Array.from({ length: MAX_RUNS }, () => uniformNull(rng));
       const k = fisherRetestedCrossing(ps, ALPHA);
       if (k !== null) alarms++;
       if (k !== null && k <= 10) after10++;
     }
     console.info(
       `null, Fisher re-tested after every run, stop at first p ≤ ${ALPHA}: false alarms ${alarms}/${EVENTS} (${pct(alarms, EVENTS)}) within ${MAX_RUNS} runs, ` +
-        `${after10}/${EVENTS} (${pct(after10, EVENTS)}) within 10 runs; nominal ${ALPHA}, band upper end ${band.hi}`,
+        `${after10}/${EVENTS} (${pct(after10, EVENTS)}) within 10 runs; limit of a valid procedure ${DESIGN.limit}`,
     );
-    expect(alarms).toBeGreaterThan(3 * band.hi);
+    expect(alarms).toBeGreaterThan(2 * DESIGN.limit);
   });
 
-  it('runs of a vignette ranked against the SAME N = 200 simulated runs (exchangeable, not independent): adaptive stays within the band', () => {
+  it('runs of a vignette ranked against the SAME N = 200 simulated runs (exchangeable, not independent): adaptive stays within the limit', () => {
     const shared = sequentialFalseAlarms(ADAPTIVE, (rng) => sharedBaselineNull(rng.fork(), 200), 202);
-    const small = sequentialFalseAlarms(ADAPTIVE, (rng) => sharedBaselineNull(rng.fork(), 50), 203);
-    console.info(
-      `null with a shared baseline (Bates et al. 2023): N = 200: ${shared}/${EVENTS} (${pct(shared, EVENTS)}); ` +
-        `N = 50 (resolution 201 still; for information): ${small}/${EVENTS} (${pct(small, EVENTS)}); band upper end ${band.hi}`,
-    );
-    expect(shared).toBeLessThanOrEqual(band.hi);
+    console.info(`null with a shared baseline of 200 (Bates et al. 2023): ${shared}/${EVENTS} (${pct(shared, EVENTS)}); limit ${DESIGN.limit}`);
+    expect(shared).toBeLessThanOrEqual(DESIGN.limit);
+  });
+
+  it('the event (9 vignettes × 10 rounds, three dependent null p-values per run): every martingale stays within the limit', () => {
+    const V = ['S1', 'S2', 'S3', 'S4', 'S5', 'S6', 'S7', 'S8', 'S9'];
+    const rng = createRng(303);
+    const counts = new Map<string, number>();
+    const count = (key: string, hit: boolean): void => {
+      counts.set(key, (counts.get(key) ?? 0) + (hit ? 1 : 0));
+    };
+    for (let e = 0; e < EVENTS; e++) {
+      const runs: StreamRun[] = [];
+      for (let round = 0; round < 10; round++) for (const v of V) runs.push({ stream: v, p: uniformNull(rng), ...nullTriple(rng) });
+      for (const combine of ['product', 'average', 'hedge'] as const) {
+        const ev = eventEvidence(runs, ALPHA, ADAPTIVE, { resolution: LATTICE, combine, streams: V });
+        count(`event ${combine}`, ev.established);
+        for (const s of ['l2', 'score', 'residual'] as const) count(`event ${combine}, ${s} across vignettes`, ev.statistics[s].established);
+        if (combine === 'product') {
+          const s1 = ev.streams[0];
+          count('vignette S1 (average of its statistics)', s1.evidence.established);
+          for (const s of ['l2', 'score', 'residual'] as const) count(`vignette S1, ${s}`, s1.statistics[s].established);
+        }
+      }
+    }
+    console.info(`global null, 9 vignettes × 10 rounds: ${[...counts].map(([k, v]) => `${k} ${v}/${EVENTS}`).join('; ')}; limit ${DESIGN.limit}`);
+    expect(counts.size).toBe(3 + 9 + 4);
+    for (const [k, v] of counts) expect(v, k).toBeLessThanOrEqual(DESIGN.limit);
   });
 });
 
-describe('several vignettes: the event martingale', () => {
-  const V = ['S1', 'S2', 'S3', 'S4', 'S5', 'S6', 'S7', 'S8', 'S9'];
+describe('the martingale identity, exactly: E[evidence after the next run | past] = evidence now', () => {
+  // Under the null each statistic's next p-value is uniform on the lattice whatever the others are;
+  // the event's evidence is linear in each statistic's factor (an average over statistics of a
+  // product or average over vignettes), so averaging over the L equally likely cells of the next run
+  // must return the current value exactly, for ANY joint law of the three with uniform margins.
+  // Two extreme joints: all three equal (comonotone) and l2 reversed against the others.
+  const L = 41;
+  const rng = createRng(61);
+  const history: StreamRun[] = [];
+  for (let i = 0; i < 12; i++) {
+    const v = ['A', 'B', 'C'][i % 3];
+    const low = v === 'C' ? 0.2 : 1; // vignette C discrepant, so the bettors have learnt something
+    history.push({ stream: v, p: 0.5, l2: low * uniformNull(rng), score: uniformNull(rng), residual: low * uniformNull(rng) });
+  }
+  const cases: Array<[EventCombination, string]> = [
+    ['product', 'C'],
+    ['average', 'A'],
+    ['hedge', 'C'],
+  ];
+  it.each(cases)('%s over vignettes, next run in vignette %s', (combine, next) => {
+    const opts = { resolution: L, combine, streams: ['A', 'B', 'C'] };
+    const now = eventEvidence(history, ALPHA, ADAPTIVE, opts);
+    for (const joint of ['comonotone', 'l2 reversed'] as const) {
+      let mean = 0;
+      let meanVignette = 0;
+      for (let k = 1; k <= L; k++) {
+        const q = joint === 'comonotone' ? k : L + 1 - k;
+        const after = eventEvidence([...history, { stream: next, p: 0.5, l2: q / L, score: k / L, residual: k / L }], ALPHA, ADAPTIVE, opts);
+        mean += after.current / L;
+        meanVignette += (after.streams.find((s) => s.stream === next)?.evidence.current ?? Number.NaN) / L;
+      }
+      expectClose(mean, now.current, 1e-12, 0, `${combine}, ${joint}: mean event evidence after the next run`);
+      expectClose(meanVignette, now.streams.find((s) => s.stream === next)?.evidence.current ?? Number.NaN, 1e-12, 0, `${combine}, ${joint}: vignette ${next}`);
+    }
+  });
+});
 
-  it('product mode: the event value is the product of the vignettes\' martingales; average mode their mean', () => {
-    const rng = createRng(9);
-    const runs: StreamRun[] = [];
-    for (let round = 0; round < 4; round++) for (const v of V.slice(0, 3)) runs.push({ stream: v, p: v === 'S3' ? 0.02 + 0.03 * rng.uniform() : latticeNull(rng) });
-    const ev = eventEvidence(runs, ALPHA, ADAPTIVE, { resolution: 201 });
-    const prod = ev.streams.reduce((a, s) => a * s.evidence.current, 1);
-    expectClose(ev.current, prod, 1e-12, 0, 'product of vignette martingales');
-    const avg = eventEvidence(runs, ALPHA, ADAPTIVE, { resolution: 201, combine: 'average', streams: ['S1', 'S2', 'S3'] });
-    expectClose(avg.current, ev.streams.reduce((a, s) => a + s.evidence.current, 0) / 3, 1e-12, 0, 'average of vignette martingales');
-    const s3 = ev.streams.find((s) => s.stream === 'S3');
-    console.info(`event of 3 vignettes × 4 runs (S3 discrepant): product ${ev.current.toFixed(2)}, average ${avg.current.toFixed(2)}, S3 alone ${s3?.evidence.current.toFixed(2)}`);
-    expect(() => eventEvidence([{ stream: 'X', p: 0.5 }], ALPHA, ADAPTIVE, { combine: 'average', streams: ['S1'] })).toThrow(RangeError);
+describe('several vignettes: per statistic, per vignette, the event', () => {
+  const V = ['S1', 'S2', 'S3'];
+  const rng = createRng(9);
+  const runs: StreamRun[] = [];
+  for (let round = 0; round < 4; round++) {
+    for (const v of V) {
+      const t = nullTriple(rng);
+      runs.push({ stream: v, p: 0.5, ...t, residual: v === 'S3' ? 0.02 + 0.03 * rng.uniform() : t.residual });
+    }
+  }
+
+  it('each statistic of each vignette is its own running product; a vignette is their average; the event combines per statistic, then averages', () => {
+    const STATS = ['l2', 'score', 'residual'] as const;
+    for (const combine of ['product', 'average', 'hedge'] as const) {
+      const ev = eventEvidence(runs, ALPHA, ADAPTIVE, { resolution: 201, combine, streams: V });
+      for (const s of ev.streams) {
+        for (const st of STATS) {
+          const alone = sequentialEvidence(runs.filter((r) => r.stream === s.stream).map((r) => r[st]), ALPHA, ADAPTIVE, { resolution: 201 });
+          expect(Array.from(s.statistics[st].martingale)).toEqual(Array.from(alone.martingale));
+        }
+        expectClose(s.evidence.current, STATS.reduce((a, st) => a + s.statistics[st].current, 0) / 3, 1e-12, 0, `${s.stream}: average of its statistics`);
+      }
+      for (const st of STATS) {
+        const levels = ev.streams.map((s) => s.statistics[st].current);
+        const product = levels.reduce((a, b) => a * b, 1);
+        const average = levels.reduce((a, b) => a + b, 0) / V.length;
+        const want = combine === 'product' ? product : combine === 'average' ? average : (product + average) / 2;
+        expectClose(ev.statistics[st].current, want, 1e-12, 0, `${combine}, ${st}`);
+      }
+      expectClose(ev.current, STATS.reduce((a, st) => a + ev.statistics[st].current, 0) / 3, 1e-12, 0, `${combine}: event = average over statistics`);
+      const s3 = ev.streams[2];
+      console.info(`${combine}: event ${ev.current.toFixed(2)}; S3 residual ${s3.statistics.residual.current.toFixed(2)}, S3 ${s3.evidence.current.toFixed(2)}; residual across vignettes ${ev.statistics.residual.current.toFixed(2)}`);
+    }
   });
 
-  it(`global null, 9 vignettes × up to 10 rounds interleaved: product and average stay within the band`, () => {
-    const rng = createRng(303);
-    const alarms = { product: 0, average: 0 };
-    for (let e = 0; e < EVENTS; e++) {
-      const runs: StreamRun[] = [];
-      for (let round = 0; round < 10; round++) for (const v of V) runs.push({ stream: v, p: latticeNull(rng) });
-      for (const combine of ['product', 'average'] as const) {
-        if (eventEvidence(runs, ALPHA, ADAPTIVE, { resolution: LATTICE, combine, streams: V }).established) alarms[combine]++;
-      }
-    }
-    console.info(`global null, 9 vignettes × 10 rounds: event false alarms product ${alarms.product}/${EVENTS} (${pct(alarms.product, EVENTS)}), average ${alarms.average}/${EVENTS} (${pct(alarms.average, EVENTS)})`);
-    expect(alarms.product).toBeLessThanOrEqual(band.hi);
-    expect(alarms.average).toBeLessThanOrEqual(band.hi);
+  it('nextRunNeeds of a vignette: the largest p that, as all three p-values of the next run, establishes it', () => {
+    const strong = runs.filter((r) => r.stream === 'S3').slice(0, 2);
+    const ev = eventEvidence(strong, ALPHA, ADAPTIVE, { resolution: 201 });
+    const need = ev.streams[0].evidence.nextRunNeeds;
+    expect(ev.streams[0].evidence.established).toBe(false);
+    expect(need).not.toBeNull();
+    if (need === null) return;
+    const next = (p: number): StreamRun => ({ stream: 'S3', p: 0.5, l2: p, score: p, residual: p });
+    expect(eventEvidence([...strong, next(need)], ALPHA, ADAPTIVE, { resolution: 201 }).streams[0].evidence.established).toBe(true);
+    expect(eventEvidence([...strong, next(need + 1 / 201)], ALPHA, ADAPTIVE, { resolution: 201 }).streams[0].evidence.established).toBe(false);
+  });
+
+  it('refuses a bad p-value naming the run and statistic, and an undeclared vignette under average', () => {
+    expect(() => eventEvidence([{ stream: 'S1', p: 0.5, l2: 0.5, score: 0, residual: 0.5 }], ALPHA)).toThrow(/run 1 \(S1\), score/);
+    expect(() => eventEvidence([{ stream: 'X', p: 0.5, l2: 0.5, score: 0.5, residual: 0.5 }], ALPHA, ADAPTIVE, { combine: 'average', streams: ['S1'] })).toThrow(RangeError);
+    const none = eventEvidence([], ALPHA, ADAPTIVE, { streams: ['S1'] });
+    expect(none.current).toBe(1);
+    expect(none.streams[0].evidence.current).toBe(1);
   });
 });
 
 // ---------------------------------------------------------------------------------------------
-// Power: runs needed, fixed-sample Fisher design vs sequential evidence, on the engine's p-values.
+// Runs to a decision: sequential evidence against the fixed-sample Fisher design, engine p-values.
 
-interface SequentialRuns {
-  readonly mean: number;
-  readonly median: number;
-  readonly q80: number;
-  readonly reached: number;
-}
-
-function runsToEvidence(pool: readonly number[], bet: (ps: number[]) => number | null, reps: number, seed: number): SequentialRuns {
-  const draw = poolSampler(pool, createRng(seed));
-  const taus: number[] = [];
-  let reached = 0;
-  for (let r = 0; r < reps; r++) {
-    const t = bet(Array.from({ length: MAX_RUNS }, draw));
-    taus.push(t ?? MAX_RUNS);
-    if (t !== null) reached++;
-  }
-  taus.sort((a, b) => a - b);
-  return { mean: taus.reduce((a, b) => a + b, 0) / reps, median: quantile(taus, 0.5), q80: quantile(taus, 0.8), reached: reached / reps };
-}
-
-const withStrategy = (strategy: EvidenceStrategy) => (ps: number[]): number | null => sequentialEvidence(ps, ALPHA, strategy, { resolution: LATTICE }).crossedAt;
-
-/**
- * The best any bettor could do here: the fixed calibrator that knows the law of the pool (its
- * Grenander estimate from all 300 runs, in-sample, so if anything optimistic). Not a procedure
- * anyone can run; it shows how far learning the alternative from the runs themselves can get.
- */
-function oracle(pool: readonly number[]): (ps: number[]) => number | null {
-  const counts = new Float64Array(LATTICE + 1);
-  for (const p of pool) counts[latticeIndex(p, LATTICE)]++;
-  const f = grenanderOnLattice(counts, pool.length);
-  return (ps) => {
-    let m = 1;
-    for (let i = 0; i < ps.length; i++) {
-      m *= f[latticeIndex(ps[i], LATTICE)];
-      if (m >= 1 / ALPHA) return i + 1;
+describe('runs to a decision on p-values from the real engine (N = 200, three smoothed p-values per run)', () => {
+  const REPS = 2000;
+  const CAP = 60;
+  /**
+   * Targets, from the method rather than from output:
+   *  - 0.6: the project's goal for E[runs to 1/α] / (runs of a fixed-sample Fisher design with
+   *    80 % power at the same α), on discrepancies where a fixed design needs 10 or more runs;
+   *  - 1.0 where a fixed design needs only a handful of runs (a sequential design that needed more
+   *    runs on average than the fixed one it replaces would have no purpose). There the goal of 0.6
+   *    is not reached: with 6 fixed runs, even a bettor told the true law of the p-values needs about
+   *    3.1 runs (0.52, printed by `npm run bench:evidence`) and the adaptive one about 4.3 (0.71).
+   * The estimate must meet its target with its Monte Carlo error: mean + 2.58 se ≤ target × n.
+   */
+  const cases: Array<{ name: string; discrepancy: Parameters<typeof statisticPool>[0]; target: number }> = [
+    { name: 'level shift 4.5 m', discrepancy: { kind: 'shift', size: 4.5 }, target: 0.6 },
+    { name: 'local bump 6 m at t = 50 (width 8)', discrepancy: { kind: 'bump', size: 6, centre: 50, width: 8 }, target: 0.6 },
+    { name: 'level shift 5.5 m', discrepancy: { kind: 'shift', size: 5.5 }, target: 1 },
+  ];
+  /** The first run at which a vignette's evidence (the average of its three statistics' martingales, as eventEvidence computes it: checked above) reaches 1/α. */
+  const crossing = (strategy: EvidenceStrategy) => (runs: RunPValues[]): number | null => {
+    const streams = (['l2', 'score', 'residual'] as const).map((s) => [s, createEvidenceStream(ALPHA, strategy, { resolution: LATTICE })] as const);
+    for (let i = 0; i < runs.length; i++) {
+      let average = 0;
+      for (const [s, stream] of streams) average += stream.push(runs[i][s]).evidence / 3;
+      if (average >= 1 / ALPHA) return i + 1;
     }
     return null;
   };
-}
 
-describe('power on p-values from the real engine (assessRun on synthetic tracks with a level shift; N = 200)', () => {
-  const REPS = 2000;
-  // Pools of overall p-values of 300 live runs with a level shift on channel 0 (mode sd 12 m,
-  // noise 1 m), each judged by engine/assess.ts against one baseline of 200 simulated runs (one
-  // vignette). 5.5 m gives a single-run power of about 20 % at 0.05 (the range asked for); 4.5 m, a
-  // weaker discrepancy (about 16 %), shows where the sequential design gains most.
-  const cases: Array<{ shift: number; seed: number; ratioAtMost: number }> = [
-    // Target was (b) ≤ 0.6 (a): not reached at single-run power ≈ 20 %. Reliably reached there:
-    // (b) ≤ 0.95 (a) (0.80–0.93 over the baselines and shifts tried while building this; about 1.1
-    // at 50 %, where a fixed design needs only 3 runs). The oracle printed beside it (a bettor that
-    // knows the pool's law, in-sample) gets 0.63 at 5.5 m and 0.45 at 4.5 m: the gap to it is the
-    // price of learning the alternative from the runs themselves while keeping 1/α = 20 valid at
-    // every run; Beta/power mixtures, normal-shift mixtures and other plug-ins tried were all worse.
-    { shift: 5.5, seed: 4242, ratioAtMost: 0.95 },
-    { shift: 4.5, seed: 4242, ratioAtMost: 0.8 },
-  ];
-  it.each(cases)('shift $shift m: adaptive sequential evidence needs fewer runs on average than the fixed-sample Fisher design', ({ shift, seed, ratioAtMost }) => {
-    const pool = enginePool({ kind: 'shift', size: shift }, 300, seed);
-    const single = pool.filter((p) => p <= ALPHA).length / pool.length;
-    const fixed = fisherDesignRuns(poolSampler(pool, createRng(11)), ALPHA, 0.8, REPS, 60);
-    expect(fixed.runs).not.toBeNull();
-    const nFixed = fixed.runs ?? Number.NaN;
-    const adaptive = runsToEvidence(pool, withStrategy(ADAPTIVE), REPS, 12);
-    const mixture = runsToEvidence(pool, withStrategy(MIXTURE), REPS, 12);
-    const vw = runsToEvidence(pool, withStrategy(VW), REPS, 12);
-    const best = runsToEvidence(pool, oracle(pool), REPS, 12);
-    const ratio = adaptive.mean / nFixed;
+  it.each(cases)('$name: E[runs to 1/α] ≤ $target × the fixed-sample Fisher design', ({ name, discrepancy, target }) => {
+    const pool = statisticPool(discrepancy, 120, 4242);
+    const power = singleRunPower(pool, ALPHA);
+    const fixed = fixedDesignRuns(pool, 'fisher-overall', ALPHA, 0.8, REPS, CAP, 11);
+    expect(fixed.runs, 'a fixed design within the cap').not.toBeNull();
+    const n = fixed.runs ?? Number.NaN;
+    const adaptive = runsToDecision(pool, crossing(ADAPTIVE), REPS, CAP, createRng(12));
+    const mixture = runsToDecision(pool, crossing(MIXTURE), REPS, CAP, createRng(12));
     console.info(
-      `engine shift ${shift} m: single-run power at 0.05 = ${(100 * single).toFixed(0)} %; (a) fixed-sample Fisher: ${nFixed} runs for 80 % power (power ${fixed.power.toFixed(3)}); ` +
-        `(b) adaptive sequential: E[runs to 1/α, cap ${MAX_RUNS}] = ${adaptive.mean.toFixed(2)} (median ${adaptive.median}, 80 % reached by ${adaptive.q80}, reached within ${MAX_RUNS}: ${(100 * adaptive.reached).toFixed(1)} %); ` +
-        `ratio (b)/(a) = ${ratio.toFixed(2)}; power-mixture E = ${mixture.mean.toFixed(2)}, Vovk–Wang E = ${vw.mean.toFixed(2)}, oracle E = ${best.mean.toFixed(2)} (ratio ${(best.mean / nFixed).toFixed(2)})`,
+      `${name}: single-run power at ${ALPHA} l2 ${power.l2.toFixed(2)}, score ${power.score.toFixed(2)}, residual ${power.residual.toFixed(2)}, overall ${power.p.toFixed(2)}; ` +
+        `fixed Fisher (overall p) ${n} runs for 80 % (power ${fixed.power.toFixed(3)}); adaptive E = ${adaptive.mean.toFixed(2)} ± ${adaptive.se.toFixed(2)} ` +
+        `(median ${adaptive.median}, 80 % by ${adaptive.q80}, reached ${(100 * adaptive.reached).toFixed(1)} %), ratio ${(adaptive.mean / n).toFixed(2)}; power-mixture E = ${mixture.mean.toFixed(2)}`,
     );
-    expect(ratio).toBeLessThanOrEqual(ratioAtMost);
     expect(adaptive.reached).toBeGreaterThan(0.99);
-    // Learning the shape pays: the adaptive strategy beats fixed-shape bets on these p-values.
-    expect(adaptive.mean).toBeLessThan(0.75 * mixture.mean);
-    expect(adaptive.mean).toBeLessThan(0.75 * vw.mean);
+    expect(adaptive.mean + 2.58 * adaptive.se).toBeLessThanOrEqual(target * n);
+    // Learning the shape should not lose to a fixed family of shapes (a mixture over κ).
+    expect(adaptive.mean).toBeLessThanOrEqual(mixture.mean + 2.58 * Math.hypot(adaptive.se, mixture.se));
   });
 });

@@ -5,6 +5,10 @@ declare module 'jstat' {
     pdf(x: number, ...params: number[]): number;
     inv(p: number, ...params: number[]): number;
   }
-  const jStat: { chisquare: Distribution; normal: Distribution; beta: Distribution };
+  interface Discrete {
+    cdf(k: number, n: number, p: number): number;
+    pdf(k: number, n: number, p: number): number;
+  }
+  const jStat: { chisquare: Distribution; normal: Distribution; beta: Distribution; binomial: Discrete };
   export default jStat;
 }
