@@ -152,6 +152,10 @@ export const assessmentReportSchema = z.object({
         .describe("the event's evidence after the last run: per statistic (l2, score, residual), half the product and half the average of the vignettes' test martingales, averaged over the three statistics (a test martingale)"),
       established: z.boolean(),
       crossedAt: z.number().nullable().describe('the run (in completion order, 1-based) at which the evidence reached 1/alpha'),
+      statistics: z
+        .object({ l2: z.number(), score: z.number(), residual: z.number() })
+        .optional()
+        .describe("each statistic's share of the event's evidence: its vignettes' test martingales combined (the headline is their average)"),
       vignettes: z.array(z.object({ id: z.string(), evidence: z.number(), established: z.boolean(), runs: z.number().int(), advice: z.string() })),
       advice: z.string(),
       note: z.string(),

@@ -314,7 +314,7 @@ export class PlApp extends LitElement {
       {
         id: 'sequential',
         name: 'anytime-valid evidence (test martingale)',
-        note: `anytime-valid: may be read after every run and runs may be added at will; a discrepancy is established at ${ev.evidence ? Math.round(ev.evidence.threshold) : '1/α'}${ev.evidence ? ` (now ${ev.evidence.event.current.toPrecision(3)}). ${ev.evidence.eventAdvice.message}` : ''}`,
+        note: `anytime-valid: may be read after every run and runs may be added at will; a discrepancy is established at ${ev.evidence ? Math.round(ev.evidence.threshold) : '1/α'}${ev.evidence ? ` (now ${ev.evidence.event.current.toPrecision(3)}: the average of L2 ${ev.evidence.event.statistics.l2.current.toPrecision(3)}, score ${ev.evidence.event.statistics.score.current.toPrecision(3)} and residual ${ev.evidence.event.statistics.residual.current.toPrecision(3)}). ${ev.evidence.eventAdvice.message}` : ''}`,
         scale: 'evidence',
         dashed: true,
         symbol: 'diamond',

@@ -108,6 +108,12 @@ export function combinedLines(c: NonNullable<AssessmentReport['combined']>): str
   ];
 }
 
+/** The event's anytime-valid evidence in words, with each statistic's share beside it. */
+export function evidenceLine(q: NonNullable<AssessmentReport['sequential']>): string {
+  const per = q.statistics ? ` (L2 ${q.statistics.l2.toPrecision(3)}, score ${q.statistics.score.toPrecision(3)}, residual ${q.statistics.residual.toPrecision(3)})` : '';
+  return `anytime-valid evidence ${q.evidence.toPrecision(3)}${per} against a threshold of ${q.threshold.toPrecision(3)}: ${q.established ? 'a discrepancy is established, whatever the decisions to stop or add runs' : 'not established'}`;
+}
+
 export async function writeReport(path: string, report: AssessmentReport): Promise<void> {
   await writeFile(path, `${JSON.stringify(report, null, 1)}\n`, 'utf8');
 }

@@ -11,7 +11,7 @@ import type { RawTrack } from '../../engine/types.js';
 import { replay } from '../service/replay.js';
 import { startServer, type RunningServer } from '../service/server.js';
 import type { AssessmentReport } from '../report.js';
-import { combinedLines } from './assess.js';
+import { combinedLines, evidenceLine } from './assess.js';
 import { renderDebrief } from './debrief.js';
 import { writeDemoFiles } from './demo-files.js';
 import { formatP, table } from './format.js';
@@ -94,6 +94,7 @@ export async function runDemo(options: DemoRunOptions): Promise<{ server: Runnin
   say(`debrief written to ${debrief}`);
   say(verdictTable(report));
   if (report.combined) for (const line of combinedLines(report.combined)) say(line);
+  if (report.sequential) say(evidenceLine(report.sequential));
   for (const c of report.cautions) say(`caution: ${c}`);
   if (!options.exitWhenDone) say(`the service keeps running at ${server.url}/ — press Ctrl-C to stop`);
   return { server, report };

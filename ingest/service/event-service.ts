@@ -685,6 +685,7 @@ export class EventService {
           evidence: e.event.current,
           established: e.event.established,
           crossedAt: e.event.crossedAt,
+          statistics: { l2: e.event.statistics.l2.current, score: e.event.statistics.score.current, residual: e.event.statistics.residual.current },
           vignettes: e.streams.filter((x) => x.runs > 0).map((x) => ({ id: x.vignette, evidence: x.current, established: x.established, runs: x.runs, advice: x.advice.message })),
           advice: e.eventAdvice.message,
           note: EVIDENCE_NOTE,
