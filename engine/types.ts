@@ -49,7 +49,20 @@ export interface AnalysisSettings {
    * interval (and longer than two grid steps) is a dropout: the grid points inside it are not judged.
    */
   readonly gapFactor: number;
+  /**
+   * Time registration of the diagnosis (engine/diagnosis.ts, engine/registration.ts): `span` is the
+   * largest lag searched, as a fraction of the vignette's horizon (shift in ±span·horizon, warp lags
+   * within the same bound). Absent: DEFAULT_REGISTRATION.
+   */
+  readonly registration?: RegistrationSettings;
 }
+
+export interface RegistrationSettings {
+  /** Largest lag searched, as a fraction of the horizon, in (0, 0.5]. */
+  readonly span: number;
+}
+
+export const DEFAULT_REGISTRATION: RegistrationSettings = { span: 0.2 };
 
 export const DEFAULT_ANALYSIS: AnalysisSettings = {
   alpha: 0.05,
@@ -58,4 +71,5 @@ export const DEFAULT_ANALYSIS: AnalysisSettings = {
   segments: 40,
   combination: 'fisher',
   gapFactor: 6,
+  registration: DEFAULT_REGISTRATION,
 };

@@ -9,6 +9,7 @@ import { parse as parseYaml, YAMLParseError } from 'yaml';
 import { z } from 'zod';
 import {
   DEFAULT_ANALYSIS,
+  DEFAULT_REGISTRATION,
   type AnalysisSettings,
   type ChannelSpec,
   type ComponentRule,
@@ -111,6 +112,17 @@ const analysisSchema = z.strictObject({
     })
     .default(DEFAULT_ANALYSIS.combination),
   gapFactor: z.number().gt(1, { error: 'must be > 1' }).default(DEFAULT_ANALYSIS.gapFactor),
+  registration: z
+    .strictObject({
+      span: z
+        .number()
+        .gt(0, { error: 'must be in (0, 0.5]' })
+        .lte(0.5, { error: 'must be in (0, 0.5]' })
+        .default(DEFAULT_REGISTRATION.span)
+        .describe('largest time lag searched when a discrepancy is diagnosed, as a fraction of the vignette horizon'),
+    })
+    .prefault({})
+    .describe('time registration of the diagnosis: a time shift, or a smooth monotone time warp, of the live run onto the simulated mean'),
 });
 
 /** Report the second and later occurrences of a key in a list as `[index, field]` issues. */
@@ -177,6 +189,7 @@ function toEventPlan(doc: z.output<typeof planSchema>): EventPlan {
       segments: a.segments,
       combination: a.combination,
       gapFactor: a.gapFactor,
+      registration: { span: a.registration.span },
     },
   };
 }

@@ -85,7 +85,19 @@ export const runReportSchema = z.object({
     .object({
       kind: z.enum(['level', 'shape', 'fine', 'timing', 'spread', 'none']),
       reason: z.string(),
-      timeShift: z.number().optional().describe('for timing: best time shift in seconds (> 0: the live run is late)'),
+      timeShift: z
+        .number()
+        .optional()
+        .describe('for timing: how late the live run is, in seconds (> 0: late, < 0: early): the best time shift, or for a time warp the lag at the end of its window'),
+      timeShiftInterval: z
+        .tuple([z.number(), z.number()])
+        .optional()
+        .describe('for timing: 1 - alpha interval for timeShift, from the simulated runs\' own registrations (their natural timing scatter)'),
+      timing: z.enum(['shift', 'warp']).optional().describe('for timing: the registration that explains the run, a constant time shift or a smooth monotone time warp'),
+      lagBuildsUp: z
+        .tuple([z.number(), z.number()])
+        .optional()
+        .describe('for a time warp: times of the live run (s) by which 10 % and 90 % of the lag had built up'),
       levelShift: z.array(z.number()).optional().describe('for level: per-channel offset, channel units'),
     })
     .optional()
@@ -191,7 +203,10 @@ export function diagnosisRow(d: Diagnosis): DiagnosisRow {
   return {
     kind: d.kind,
     reason: d.reason,
-    timeShift: d.kind === 'timing' ? d.evidence.timing.shift : undefined,
+    timeShift: d.kind === 'timing' ? (d.timing?.lag ?? d.evidence.timing.shift) : undefined,
+    timeShiftInterval: d.timing ? [d.timing.interval[0], d.timing.interval[1]] : undefined,
+    timing: d.timing?.model,
+    lagBuildsUp: d.timing?.buildUp ? [d.timing.buildUp[0], d.timing.buildUp[1]] : undefined,
     levelShift: d.kind === 'level' ? [...d.evidence.level.shift] : undefined,
   };
 }
