@@ -188,6 +188,11 @@ export interface WarpEvidence extends CorrectionEvidence {
   /** max |δ| over the compared part, s, and its rank p-value among the simulated curves' (upper tail). */
   readonly largest: number;
   readonly pLag: number;
+  /**
+   * Share of the run's excess distance (D(0) over the median simulated curve's) that the warp
+   * removes, each curve warped alike: 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0)).
+   */
+  readonly explained: number;
   readonly atLimit: boolean;
 }
 
@@ -201,6 +206,9 @@ export interface TimingSize {
   /** For a warp: where the lag built up, times of the run, s. */
   readonly buildUp?: readonly [number, number];
 }
+
+/** The warp explains "most" of a discrepancy when it removes at least this share of the excess. */
+export const EXPLAINS_MOST = 0.5;
 
 export const DIAGNOSIS_DEFAULTS = { alpha: 0.05, span: DEFAULT_REGISTRATION.span } as const;
 const MAD_SCALE = 1.482602218505602; // 1 / Φ⁻¹(3/4)
@@ -244,6 +252,16 @@ export function noiseSd(track: RawTrack): number[] {
     }
     return MAD_SCALE * median(e);
   });
+}
+
+/** D(0) of ./registration.ts: Σ_g Σ_c ω_cg (x_c(t_g) − m_c(t_g))² / Σ_g w_g over the window. */
+function zeroDistance(x: Float64Array, mean: Float64Array, w: Float64Array, jw: Float64Array): number {
+  const M = w.length;
+  let acc = 0;
+  let total = 0;
+  for (let g = 0; g < M; g++) total += w[g] > 0 ? w[g] : 0;
+  for (let d = 0; d < x.length; d++) if (w[d % M] > 0) acc += jw[d] * (x[d] - mean[d]) ** 2;
+  return total > 0 ? acc / total : Number.NaN;
 }
 
 /** (1 + #{reference ≥ value}) / (N + 1): how unusually large `value` is among the reference. */
@@ -378,8 +396,11 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
 
   const { mean, weights: jw } = result.model;
   const span = options.maxShift ?? (options.span ?? DIAGNOSIS_DEFAULTS.span) * input.grid.horizon;
-  const target: RegistrationTarget = { target: mean, window: input.gridWeights, joined: jw, grid: input.grid, span };
-  const regs = all.map((x) => registerShift(x, target));
+  const regs = all.map((x) => registerShift(x, { target: mean, window: input.gridWeights, joined: jw, grid: input.grid, span }));
+  // The warp's roughness penalty in the units of D: the median simulated curve's distance D_i(0)
+  // (./registration.ts), so a lag change of one span between neighbouring knots costs as much as a
+  // typical curve's whole distance to the mean.
+  const target: RegistrationTarget = { target: mean, window: input.gridWeights, joined: jw, grid: input.grid, span, roughness: median(sims.map((x) => zeroDistance(x, mean, input.gridWeights, jw))) };
   const reg = regs[N];
   const moved = warpedCurve(input.curve, mean, input.gridWeights, input.grid, () => reg.shift);
   const judged = (w: Float64Array): number => w.reduce((n, v) => n + (v > 0 ? 1 : 0), 0);
@@ -402,6 +423,10 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
     // the warp cannot explain the run and its reference values are left NaN.
     const refs = pAfter > alpha ? sims.map((x, i) => registerWarp(x, target, regs[i].shift)) : undefined;
     const pLag = refs ? upperRankP(refs.map(largestLag), largest) : Number.NaN;
+    // Share of the run's excess distance over the median simulated curve that the warp removes,
+    // each curve warped alike: 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0)).
+    const excess = refs ? fit.distance0 - median(refs.map((f) => f.distance0)) : Number.NaN;
+    const explained = refs && excess > 0 ? 1 - (fit.distance - median(refs.map((f) => f.distance))) / excess : Number.NaN;
     warp = {
       knots: Array.from(fit.knots),
       lags: Array.from(fit.lags),
@@ -413,8 +438,9 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
       atLimit: fit.atLimit,
       ratio: fit.ratio,
       pRatio: refs ? lowerRankP(refs.map((f) => f.ratio), fit.ratio) : Number.NaN,
+      explained,
       pAfter,
-      explains: pAfter > alpha && pLag <= alpha,
+      explains: pAfter > alpha && explained >= EXPLAINS_MOST,
     };
   }
   const explainedBy: 'shift' | 'warp' | undefined = shiftExplains ? 'shift' : warp?.explains ? 'warp' : undefined;

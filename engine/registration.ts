@@ -22,7 +22,11 @@
  *
  * Warp: h(s) = s + δ(s) with δ piecewise linear in s between K + 1 equally spaced knots over the
  * judged span (first to last judged grid point; K = WARP_SEGMENTS), so that a lag that builds up in
- * one phase of the run and then stays is described with K + 1 numbers. Constraints: |δ_j| ≤ span at
+ * one phase of the run and then stays is described with K + 1 numbers. The criterion is penalised,
+ * D(h) + λ Σ_j ((δ_{j+1} − δ_j)/span)², a roughness penalty on the warp as in Ramsay & Silverman's
+ * continuous registration (ch. 8), here on the first differences of the lags so that the warp
+ * departs from a constant shift only where the curves ask for it (in a stretch without timing
+ * landmarks the lag stays put instead of fitting the curve's own variation). Constraints: |δ_j| ≤ span at
  * every knot, and the slope of h on every segment, 1 + (δ_{j+1} − δ_j)/(s_{j+1} − s_j), within
  * [MIN_SLOPE, 1/MIN_SLOPE], so h is strictly increasing (a monotone warp: time never runs
  * backwards) and neither clock runs more than 1/MIN_SLOPE times faster than the other. The knots are
@@ -40,8 +44,9 @@
  * Size and place: the lag at the end of the window, δ(s*) with s* = min(b, h⁻¹(b)) and b the last
  * judged grid point (the lag of the curve's last judged moment; a late curve's end is where the
  * target was at b − δ(s*)); and where the lag builds up: the times (on the curve's clock, u = h(s))
- * by which 10 % and 90 % of the lag's total variation |δ(a)| + ∫_a^{s*} |δ'(s)| ds has accumulated
- * (the |δ(a)| term counts a lag already present at the window start a as built up there).
+ * at which the lag, on its way from its value at the window start a to that end value, first covers
+ * 10 % and 90 % of the change (a first passage, so that small wiggles of the lag do not move it; for
+ * a constant lag both are h(a): the lag was there from the start).
  *
  * Interval: `predictionInterval` inverts the rank of the estimate's error among reference errors —
  * the same registration of curves for which the true value is 0 (the simulated curves registered to
@@ -76,6 +81,11 @@ export interface RegistrationTarget {
   readonly grid: Grid;
   /** Largest |lag| searched, seconds. */
   readonly span: number;
+  /**
+   * λ of the warp's roughness penalty λ Σ_j ((δ_{j+1} − δ_j)/span)² (default 0), in the units of D;
+   * e.g. the median D(0) of reference curves.
+   */
+  readonly roughness?: number;
 }
 
 export interface ShiftFit {
@@ -92,8 +102,11 @@ export interface WarpFit {
   readonly knots: Float64Array;
   /** Lags δ_j at the knots, seconds. */
   readonly lags: Float64Array;
-  /** D(ĥ) / D(0) (D(0) on all judged points). */
+  /** D(ĥ) / D(0), D(0) on the same compared points. */
   readonly ratio: number;
+  /** D(ĥ) (mean over the compared points) and D(0) over all judged points. */
+  readonly distance: number;
+  readonly distance0: number;
   /** Some knot lies on ±span. */
   readonly atLimit: boolean;
   /** The search step reached its floor within WARP_MAX_SWEEPS. */
@@ -249,7 +262,7 @@ export function registerWarp(curve: Float64Array, t: RegistrationTarget, start =
   const a = ga >= 0 ? t.grid.points[ga] : 0;
   const b = gb >= 0 ? t.grid.points[gb] : 0;
   for (let j = 0; j <= K; j++) knots[j] = a + ((b - a) * j) / K;
-  if (ga < 0 || gb <= ga) return { knots, lags: new Float64Array(K + 1), ratio: 1, atLimit: false, converged: true };
+  if (ga < 0 || gb <= ga) return { knots, lags: new Float64Array(K + 1), ratio: 1, distance: Number.NaN, distance0: Number.NaN, atLimit: false, converged: true };
 
   // Grid points of each segment (a point on a knot belongs to the segment on its right, the last
   // knot to the last segment).
@@ -285,6 +298,8 @@ export function registerWarp(curve: Float64Array, t: RegistrationTarget, start =
   const base = new Float64Array(M);
   for (let g = 0; g < M; g++) if (segOf[g] >= 0) base[g] = pointCost(curve, t, g, t.grid.points[g]);
   const segLength = (b - a) / K;
+  const lambda = t.roughness ?? 0;
+  const spanScale = t.span > 0 ? t.span : 1;
   const slopeOk = (lo: number, hi: number): boolean => {
     const slope = 1 + (hi - lo) / segLength;
     return slope >= MIN_SLOPE - EPS && slope <= 1 / MIN_SLOPE + EPS;
@@ -319,7 +334,13 @@ export function registerWarp(curve: Float64Array, t: RegistrationTarget, start =
       sumCost += cost[g];
       sumUsed += usedW[g];
     }
-    const value = (sc: number, su: number): number => (su > 0 && su >= 0.5 * total - EPS ? sc / su : Number.POSITIVE_INFINITY);
+    const penalty = (): number => {
+      if (!(lambda > 0)) return 0;
+      let p = 0;
+      for (let j = 0; j < K; j++) p += ((d[j + 1] - d[j]) / spanScale) ** 2;
+      return lambda * p;
+    };
+    const value = (sc: number, su: number): number => (su > 0 && su >= 0.5 * total - EPS ? sc / su + penalty() : Number.POSITIVE_INFINITY);
     let current = value(sumCost, sumUsed);
     let step = Math.max(t.span / 4, t.grid.step);
     const floor = t.grid.step / 8;
@@ -392,9 +413,11 @@ export function registerWarp(curve: Float64Array, t: RegistrationTarget, start =
     used += t.window[g];
   }
   const ratio = Number.isFinite(best.d) && d0 > 0 && used > 0 ? dh / d0 : 1;
+  let all0 = 0;
+  for (let g = ga; g <= gb; g++) if (segOf[g] >= 0) all0 += base[g];
   let atLimit = false;
   for (const v of best.lags) if (Math.abs(v) >= t.span - 1e-6) atLimit = true;
-  return { knots, lags: best.lags, ratio, atLimit, converged: best.converged };
+  return { knots, lags: best.lags, ratio, distance: used > 0 ? dh / used : Number.NaN, distance0: all0 / total, atLimit, converged: best.converged };
 }
 
 /**
@@ -462,34 +485,37 @@ export function largestLag(fit: Pick<WarpFit, 'knots' | 'lags'>): number {
 }
 
 /**
- * Where the lag builds up: the curve-clock times u = h(s) by which `lo` and `hi` (default 10 %, 90 %)
- * of the total variation |δ(a)| + ∫_a^{s*} |δ'| ds has accumulated (see the module comment).
+ * Where the lag builds up: the curve-clock times u = h(s) at which the lag, on its way from its value
+ * at the window start δ(a) to its end value δ(s*), first covers `lo` and `hi` (default 10 %, 90 %)
+ * of that change, with s in [a, s*] (see the module comment). For a constant lag (a shift) both
+ * times are h(a): the lag was there from the start.
  */
 export function lagBuildUp(fit: Pick<WarpFit, 'knots' | 'lags'>, lo = 0.1, hi = 0.9): [number, number] {
-  const { knots, lags } = fit;
+  const { knots } = fit;
   const end = endTime(fit);
   const a = knots[0];
-  // Pieces: a point mass |δ(a)| at a, then each segment clipped to [a, end].
-  const pieces: Array<{ s0: number; s1: number; mass: number }> = [{ s0: a, s1: a, mass: Math.abs(lags[0]) }];
-  for (let j = 0; j + 1 < knots.length && knots[j] < end; j++) {
-    const s1 = Math.min(knots[j + 1], end);
-    pieces.push({ s0: knots[j], s1, mass: Math.abs(lagAt(fit, s1) - lags[j]) });
-  }
-  const totalMass = pieces.reduce((acc, p) => acc + p.mass, 0);
+  const start = lagAt(fit, a);
+  const change = lagAt(fit, end) - start;
   const h = (s: number): number => s + lagAt(fit, s);
-  if (!(totalMass > 0)) return [h(a), h(a)];
-  const at = (q: number): number => {
-    let acc = 0;
-    for (const p of pieces) {
-      if (acc + p.mass >= q * totalMass && p.mass > 0) {
-        const f = (q * totalMass - acc) / p.mass;
-        return h(p.s0 + Math.max(0, Math.min(1, f)) * (p.s1 - p.s0));
+  if (!(Math.abs(change) > 1e-9)) return [h(a), h(a)];
+  const sign = Math.sign(change);
+  // Breakpoints of δ on [a, end]: the knots inside and the end.
+  const points = [a];
+  for (let j = 1; j < knots.length && knots[j] < end; j++) points.push(knots[j]);
+  if (end > a) points.push(end);
+  const first = (q: number): number => {
+    const level = q * Math.abs(change);
+    for (let k = 0; k + 1 < points.length; k++) {
+      const v0 = sign * (lagAt(fit, points[k]) - start);
+      const v1 = sign * (lagAt(fit, points[k + 1]) - start);
+      if (v1 >= level && v1 > v0) {
+        const f = Math.max(0, Math.min(1, (level - v0) / (v1 - v0)));
+        return h(points[k] + f * (points[k + 1] - points[k]));
       }
-      acc += p.mass;
     }
     return h(end);
   };
-  return [at(lo), at(hi)];
+  return [first(lo), first(hi)];
 }
 
 /**

@@ -103,6 +103,11 @@ export interface ManoeuvreOptions {
   readonly discrepancy?: ManoeuvreDiscrepancy;
   /** Multiplies the measurement noise sd of both channels (default 1): a noisier run. */
   readonly noiseFactor?: number;
+  /**
+   * Time of a second manoeuvre (s; default none): channel 1 steps back down by 8 deg along a
+   * logistic of scale 2 s at secondTurn + TURN_JITTER_SD·z, a second timing landmark.
+   */
+  readonly secondTurn?: number;
 }
 
 /**
@@ -120,6 +125,8 @@ export function sampleManoeuvreTrack(rng: Rng, id: string, options: ManoeuvreOpt
   const k = options.noiseFactor ?? 1;
   const a = Float64Array.from({ length: 6 }, () => rng.normal());
   const turn = TURN_TIME + TURN_JITTER_SD * rng.normal();
+  // Drawn only for a second manoeuvre, so that the other draws keep their order.
+  const second = options.secondTurn !== undefined ? options.secondTurn + TURN_JITTER_SD * rng.normal() : Number.NaN;
   const clock = (s: number): number => (d.kind === 'timeShift' ? s - d.seconds : d.kind === 'timeWarp' ? warpInverse(s, d) : s);
   const rest: Discrepancy = d.kind === 'timeShift' || d.kind === 'timeWarp' ? { kind: 'none' } : d;
   const t: number[] = [];
@@ -132,7 +139,8 @@ export function sampleManoeuvreTrack(rng: Rng, id: string, options: ManoeuvreOpt
     const softplus = 3 * (x > 30 ? x : Math.log1p(Math.exp(x)));
     t.push(s);
     y0.push(truthAt(u, a, 0, rest) - 0.5 * softplus + k * NOISE[0] * rng.normal());
-    y1.push(truthAt(u, a, 1, rest) + 8 / (1 + Math.exp(-(u - turn) / 2)) + k * NOISE[1] * rng.normal());
+    const back = Number.isNaN(second) ? 0 : 8 / (1 + Math.exp(-(u - second) / 2));
+    y1.push(truthAt(u, a, 1, rest) + 8 / (1 + Math.exp(-(u - turn) / 2)) - back + k * NOISE[1] * rng.normal());
   }
   return { vignette: 'V', track: id, t: Float64Array.from(t), values: [Float64Array.from(y0), Float64Array.from(y1)] };
 }
