@@ -1,6 +1,6 @@
 /**
  * What kind of discrepancy makes a run stand out: a shift in level, a change of shape, fine
- * structure, a time shift, or more spread than simulated. Every candidate gets its evidence numbers
+ * structure, a time shift or warp, or more spread than simulated. Every candidate gets its evidence numbers
  * and a documented rule picks the dominant one. The diagnosis describes; the verdict stays the run's
  * conformal p-value (./calibrate.ts).
  *
@@ -40,10 +40,16 @@
  *                   curves' own shifts (their natural timing deviations, true shift 0).
  *            warp   when the curve stands out and the shift does not explain it: a smooth monotone
  *                   warp h(t) = t + δ(t), δ piecewise linear with few knots, slopes of h bounded
- *                   away from 0. Evidence: the lag at the end of the window with its 1 − α
- *                   interval (from the simulated curves' own warps), where the lag builds up (times
- *                   of the run), max |δ| and its rank among the simulated curves' (pLag), pAfter
- *                   of the warped run.
+ *                   away from 0, a roughness penalty on the lag's changes scaled by the median
+ *                   simulated distance. Evidence: pAfter of the warped run; when that no longer
+ *                   stands out, every simulated curve is warped alike, giving the lag at the end
+ *                   of the window with its 1 − α interval, the share of the run's excess distance
+ *                   the warp removes, explained = 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0))
+ *                   (D as in ./registration.ts; above 1 when the warped run sits closer to the
+ *                   mean than the median warped simulated curve), max |δ| and its rank among the
+ *                   simulated curves' (pLag, reported only: the simulated curves' warps also
+ *                   absorb some of their own shape variation, so their lags are not a sharp
+ *                   reference); and where the lag builds up (times of the run).
  *            The interval assumes the run's natural timing deviations are like the simulations'
  *            (exchangeable); where the live conditions make them larger, it is too narrow for the
  *            systematic lag (the demo test measures this).
@@ -62,9 +68,10 @@
  *      stands out (pAfter > α: the correction explains what made it stand out) and the correction
  *      is unusual for the simulations: for the shift the shift itself (pShift ≤ α; the fall ratio
  *      of D is diluted by the run's natural deviations elsewhere in the window, and requiring it
- *      too lost about one shifted run in ten in the tests' setting), for the warp its largest lag
- *      (pLag ≤ α), for level the fall of Q (pRatio ≤ α). Timing is explained by the shift, or
- *      failing that by the warp (the simpler registration first). Timing and level are tried first
+ *      too lost about one shifted run in ten in the tests' setting), for level the fall of Q
+ *      (pRatio ≤ α). The warp explains the run when the warped run no longer stands out and the
+ *      warp removes most of the run's excess distance (explained ≥ EXPLAINS_MOST = 1/2). Timing is
+ *      explained by the shift, or failing that by the warp (the simpler registration first). Timing and level are tried first
  *      because a time shift or an offset also shows in the fixed-time statistics; if both explain,
  *      the larger pAfter wins. Otherwise `shape` when z(score) ≥ z(residual), else `fine`.
  *
@@ -477,7 +484,7 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
     if (explainedBy === 'warp' && warp !== undefined) {
       const size: TimingSize = { model: 'warp', lag: warp.lagAtEnd, interval: warp.lagInterval, buildUp: warp.buildUp };
       return {
-        ...out('timing', `the run ends ${late(warp.lagAtEnd)} (${level95} interval ${range(warp.lagInterval)}), the lag building up between t = ${fmt(warp.buildUp[0])} s and ${fmt(warp.buildUp[1])} s of the run (p = ${fmt(warp.pLag)} among simulated warps); a shift of ${fmt(timing.shift)} s leaves p = ${fmt(timing.pAfter)}, the warp ${fmt(warp.pAfter)}`),
+        ...out('timing', `the run ends ${late(warp.lagAtEnd)} (${level95} interval ${range(warp.lagInterval)}), the lag building up between t = ${fmt(warp.buildUp[0])} s and ${fmt(warp.buildUp[1])} s of the run; the time warp removes ${fmt(100 * Math.min(1, warp.explained))} % of its excess distance and leaves p = ${fmt(warp.pAfter)}, a shift of ${fmt(timing.shift)} s leaves p = ${fmt(timing.pAfter)}`),
         timing: size,
       };
     }

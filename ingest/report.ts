@@ -204,7 +204,8 @@ export function diagnosisRow(d: Diagnosis): DiagnosisRow {
     kind: d.kind,
     reason: d.reason,
     timeShift: d.kind === 'timing' ? (d.timing?.lag ?? d.evidence.timing.shift) : undefined,
-    timeShiftInterval: d.timing ? [d.timing.interval[0], d.timing.interval[1]] : undefined,
+    // JSON has no infinities: an interval with an open end (too few simulated runs for the level) is left out.
+    timeShiftInterval: d.timing && d.timing.interval.every(Number.isFinite) ? [d.timing.interval[0], d.timing.interval[1]] : undefined,
     timing: d.timing?.model,
     lagBuildsUp: d.timing?.buildUp ? [d.timing.buildUp[0], d.timing.buildUp[1]] : undefined,
     levelShift: d.kind === 'level' ? [...d.evidence.level.shift] : undefined,

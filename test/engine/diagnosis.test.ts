@@ -232,7 +232,7 @@ describe('timing by registration beyond ±30 s and through a warp (40 runs each;
       counts,
       `by shift ${timed.length - warped.length}, by warp ${warped.length};`,
       `|lag at end − 12|: median ${errors[Math.floor(errors.length / 2)]?.toFixed(2)} s, max ${errors.at(-1)?.toFixed(2)} s, within 3 s ${errors.filter((e) => e <= 3).length} of ${errors.length};`,
-      `build-up inside the ramp ${inside} of ${warped.length} (${warped.map((d) => d.timing!.buildUp!.map((x) => x.toFixed(0)).join('..')).join(', ')}); interval covers 12 s in ${covered} of ${warped.length} (binomial 99 % band of 95 %: ${band.lo}..${band.hi})`,
+      `build-up where the ramp is ${inside} of ${warped.length} (${warped.map((d) => d.timing!.buildUp!.map((x) => x.toFixed(0)).join('..')).join(', ')}); interval covers 12 s in ${covered} of ${warped.length} (binomial 99 % band of 95 %: ${band.lo}..${band.hi})`,
     );
     expect(warped.length / reps).toBeGreaterThanOrEqual(0.75);
     expect(errors.filter((e) => e <= 3).length / errors.length).toBeGreaterThanOrEqual(0.9);
