@@ -28,7 +28,7 @@
  *   timing   registration of the run to the mean m of the N + 1 curves (the simulated mean up to
  *            1/(N + 1) of the run's deviation, so that the run and every simulated curve are
  *            registered alike), by ./registration.ts (least squares on the judged window, Ramsay &
- *            Silverman, "Functional Data Analysis", 2nd ed., Springer 2005, ch. 7–8,
+ *            Silverman, "Functional Data Analysis", 2nd ed., Springer 2005, registration chapter,
  *            doi:10.1007/b98888), with lags searched up to span = the plan's
  *            analysis.registration.span × the horizon (0.2 × horizon by default):
  *            shift  τ̂ minimising D(τ) = Σ_g Σ_c w_g/s_c² (x_c(t_g + τ) − m_c(t_g))² / Σ_g w_g.

@@ -13,8 +13,9 @@
  * with ω_{cg} = w_g / s_c² the joined weights of the model (each channel in its own scale). At least
  * half of the window's weight must remain compared, otherwise the warp is not admissible.
  * (Least-squares registration of a curve to a template, Ramsay & Silverman, "Functional Data
- * Analysis", 2nd ed., Springer 2005, ch. 7 (shift registration, §7.2) and ch. 8 (continuous
- * registration by a monotone warping function), doi:10.1007/b98888.)
+ * Analysis", 2nd ed., Springer 2005, doi:10.1007/b98888: shift registration and continuous
+ * registration by a monotone warping function, in the registration chapter (ch. 7; chapter and
+ * section numbers quoted from memory).)
  *
  * Shift: h(s) = s + τ, τ in [−span, span]. D is evaluated on a lattice of step Δt/4 (coarse to
  * fine, see `registerShift`), then one parabolic step through the best lattice point and its
@@ -24,21 +25,19 @@
  * judged span (first to last judged grid point; K = WARP_SEGMENTS), so that a lag that builds up in
  * one phase of the run and then stays is described with K + 1 numbers. The criterion is penalised,
  * D(h) + λ Σ_j ((δ_{j+1} − δ_j)/span)², a roughness penalty on the warp as in Ramsay & Silverman's
- * continuous registration (ch. 8), here on the first differences of the lags so that the warp
- * departs from a constant shift only where the curves ask for it (in a stretch without timing
- * landmarks the lag stays put instead of fitting the curve's own variation). Constraints: |δ_j| ≤ span at
- * every knot, and the slope of h on every segment, 1 + (δ_{j+1} − δ_j)/(s_{j+1} − s_j), within
+ * continuous registration, here on the first differences of the lags so that the warp departs from
+ * a constant shift only where the curves ask for it (in a stretch without timing landmarks the lag
+ * stays put instead of fitting the curve's own variation). Constraints: |δ_j| ≤ span at every knot, and the slope of h on every segment, 1 + (δ_{j+1} − δ_j)/(s_{j+1} − s_j), within
  * [MIN_SLOPE, 1/MIN_SLOPE], so h is strictly increasing (a monotone warp: time never runs
  * backwards) and neither clock runs more than 1/MIN_SLOPE times faster than the other. The knots are
- * fitted by compass search (coordinate moves ±Δ on one knot at a time, a move kept when it lowers D
- * and keeps the constraints; Δ halved when no move helps; stop when Δ < Δt/8), the direct-search
+ * fitted by compass search (coordinate moves ±Δ on one knot at a time, a move kept when it lowers
+ * the penalised criterion and keeps the constraints; Δ halved when no move helps; stop when Δ < Δt/8), the direct-search
  * method of Hooke & Jeeves (J. ACM 8(2):212–229, 1961, doi:10.1145/321062.321069; convergence
  * analysis in Kolda, Lewis & Torczon, SIAM Review 45(3):385–482, 2003,
  * doi:10.1137/S003614450242889). It needs no derivative of D, which jumps where a grid point leaves
  * the compared set. Search from the best shift and, when that is at least a grid step away, from
- * δ = 0; the lower D wins. At most
- * WARP_MAX_SWEEPS sweeps over the knots (the loop is bounded; `converged` says whether Δ reached its
- * floor first). A move of one knot changes only the two segments next to it, so each trial costs
+ * δ = 0; the lower criterion wins. At most WARP_MAX_SWEEPS sweeps over the knots (the loop is
+ * bounded; `converged` says whether Δ reached its floor first). A move of one knot changes only the two segments next to it, so each trial costs
  * O(C · M/K).
  *
  * Size and place: the lag at the end of the window, δ(s*) with s* = min(b, h⁻¹(b)) and b the last
@@ -55,8 +54,10 @@
  * k_lo = ⌊(N + 1) α/2⌋ and k_hi = ⌈(N + 1)(1 − α/2)⌉ covers τ with probability ≥ 1 − α
  * (split-conformal prediction interval: Vovk, Gammerman & Shafer, "Algorithmic Learning in a Random
  * World", Springer 2005, doi:10.1007/b106715; Lei, G'Sell, Rinaldo, Tibshirani & Wasserman, JASA
- * 113:1094–1111, 2018, doi:10.1080/01621459.2017.1307307). An order statistic outside 1..N gives an
- * infinite end.
+ * 113:1094–1111, 2018, doi:10.1080/01621459.2017.1307307; volume and pages quoted from memory). An
+ * order statistic outside 1..N gives an infinite end. The interval is for the lag beyond the natural
+ * timing scatter of one curve as the reference curves show it; a curve made under conditions that
+ * scatter more (a slower manoeuvre accumulates more timing noise) gets too narrow an interval.
  */
 import type { Grid } from './grid.js';
 
