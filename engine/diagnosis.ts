@@ -1,6 +1,6 @@
 /**
  * What kind of discrepancy makes a run stand out: a shift in level, a change of shape, fine
- * structure, a time shift, or more spread than simulated. Every candidate gets its evidence numbers
+ * structure, a time shift or warp, or more spread than simulated. Every candidate gets its evidence numbers
  * and a documented rule picks the dominant one. The diagnosis describes; the verdict stays the run's
  * conformal p-value (./calibrate.ts).
  *
@@ -25,19 +25,34 @@
  *            model weighting keeps it. Evidence: δ̂ (channel units); the fall ratio Q(δ̂)/Q(0) and its
  *            rank among the simulated curves' own fall ratios (pRatio: small when the offset explains
  *            unusually much); pAfter, the overall conformal p-value of the corrected run x − δ̂.
- *   timing   τ̂, the shift that best registers the run to the mean m of the N + 1 curves (the
- *            simulated mean up to 1/(N + 1) of the run's deviation, so that the run and every
- *            simulated curve are registered alike): it minimises
- *            D(τ) = Σ_g Σ_c w_g/s_c² (x_c(t_g + τ) − m_c(t_g))² / Σ_g w_g over the judged grid points
- *            whose shifted time still lies in the judged window (shift registration by least squares,
- *            Ramsay & Silverman, "Functional Data Analysis", 2nd ed., Springer 2005, §7.2,
- *            doi:10.1007/b98888). x is linear between grid points; τ runs over a lattice of step
- *            grid.step/4 in [−maxShift, maxShift] (the overlap must keep half of the window), then
- *            one parabolic step through the best lattice point and its neighbours (clamped to half a
- *            lattice step). τ̂ > 0: the run is late (it does at t + τ̂ what the simulations do at t).
- *            Evidence: τ̂ (s) and its rank among the simulated curves' own |τ̂_i| (pShift: small when
- *            the run's timing is unusual); the fall ratio D(τ̂)/D(0) on the same points and its rank
- *            (pRatio); pAfter, the overall conformal p-value of the re-timed run on the overlap.
+ *   timing   registration of the run to the mean m of the N + 1 curves (the simulated mean up to
+ *            1/(N + 1) of the run's deviation, so that the run and every simulated curve are
+ *            registered alike), by ./registration.ts (least squares on the judged window, Ramsay &
+ *            Silverman, "Functional Data Analysis", 2nd ed., Springer 2005, registration chapter,
+ *            doi:10.1007/b98888), with lags searched up to span = the plan's
+ *            analysis.registration.span × the horizon (0.2 × horizon by default):
+ *            shift  τ̂ minimising D(τ) = Σ_g Σ_c w_g/s_c² (x_c(t_g + τ) − m_c(t_g))² / Σ_g w_g.
+ *                   τ̂ > 0: the run is late (it does at t + τ̂ what the simulations do at t).
+ *                   Evidence: τ̂ (s) and its rank among the simulated curves' own |τ̂_i| (pShift:
+ *                   small when the run's timing is unusual); the fall ratio D(τ̂)/D(0) and its rank
+ *                   (pRatio); pAfter, the overall conformal p-value of the re-timed run on the
+ *                   overlap; a 1 − α interval for the shift, split-conformal from the simulated
+ *                   curves' own shifts (their natural timing deviations, true shift 0).
+ *            warp   when the curve stands out and the shift does not explain it: a smooth monotone
+ *                   warp h(t) = t + δ(t), δ piecewise linear with few knots, slopes of h bounded
+ *                   away from 0, a roughness penalty on the lag's changes scaled by the median
+ *                   simulated distance. Evidence: pAfter of the warped run; when that no longer
+ *                   stands out, every simulated curve is warped alike, giving the lag at the end
+ *                   of the window with its 1 − α interval, the share of the run's excess distance
+ *                   the warp removes, explained = 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0))
+ *                   (D as in ./registration.ts; above 1 when the warped run sits closer to the
+ *                   mean than the median warped simulated curve), max |δ| and its rank among the
+ *                   simulated curves' (pLag, reported only: the simulated curves' warps also
+ *                   absorb some of their own shape variation, so their lags are not a sharp
+ *                   reference); and where the lag builds up (times of the run).
+ *            The interval assumes the run's natural timing deviations are like the simulations'
+ *            (exchangeable); where the live conditions make them larger, it is too narrow for the
+ *            systematic lag (the demo test measures this).
  *   spread   the run's per-channel noise sd against the simulated tracks' (made the same way, e.g.
  *            by `noiseSd`): rank p-value per channel (upper tail), Bonferroni over channels, and the
  *            largest robust z of ln sd. The smoothed curves hide the noise, so this candidate uses
@@ -50,24 +65,30 @@
  *   2. `spread` when the spread stands out and either the curve does not, or z(spread) ≥ the largest
  *      z of the curve statistics (l2, score, residual).
  *   3. Otherwise the curve label. A correction explains the run when the corrected run no longer
- *      stands out (pAfter > α) and the correction is unusual for the simulations: for timing the
- *      shift itself (pShift ≤ α; the fall ratio of D is diluted by the run's natural deviations
- *      elsewhere in the window, and requiring it too lost about one shifted run in ten in the
- *      tests' setting), for level the fall of Q (pRatio ≤ α). Timing and level are tried first
+ *      stands out (pAfter > α: the correction explains what made it stand out) and the correction
+ *      is unusual for the simulations: for the shift the shift itself (pShift ≤ α; the fall ratio
+ *      of D is diluted by the run's natural deviations elsewhere in the window, and requiring it
+ *      too lost about one shifted run in ten in the tests' setting), for level the fall of Q
+ *      (pRatio ≤ α). The warp explains the run when the warped run no longer stands out and the
+ *      warp removes most of the run's excess distance (explained ≥ EXPLAINS_MOST = 1/2). Timing is
+ *      explained by the shift, or failing that by the warp (the simpler registration first). Timing and level are tried first
  *      because a time shift or an offset also shows in the fixed-time statistics; if both explain,
  *      the larger pAfter wins. Otherwise `shape` when z(score) ≥ z(residual), else `fine`.
  *
  * The reassessments of corrected runs are full conformal (./calibrate.ts conformalAssess), so pAfter
  * is on the same scale as the original p-value; the correction is fitted to the run alone, which
  * favours "explained", hence the second condition, which ranks the run's correction among the same
- * correction fitted to every simulated curve. Cost: two extra conformal fits and N + 1 registrations.
+ * correction fitted to every simulated curve. Cost: two extra conformal fits and N + 1 shift
+ * registrations; for a run that stands out and is not explained by a shift, one more conformal fit
+ * and one warp, and N more warps when the warped run no longer stands out.
  */
 import { solve, Matrix } from 'ml-matrix';
 import { curvesForWindow, restrictTrack, type Baseline, type RunAssessment } from './assess.js';
 import { conformalAssess, type CalibrationReference, type ConformalResult } from './calibrate.js';
 import { projectCurve } from './fpca.js';
 import { windowWeights, type Grid } from './grid.js';
-import type { ComponentRule, RawTrack } from './types.js';
+import { lagAt, lagAtEnd, lagBuildUp, largestLag, predictionInterval, registerShift, registerWarp, warpedCurve, type RegistrationTarget } from './registration.js';
+import { DEFAULT_REGISTRATION, type ComponentRule, type RawTrack } from './types.js';
 
 export type DiscrepancyKind = 'level' | 'shape' | 'fine' | 'timing' | 'spread' | 'none';
 
@@ -95,7 +116,12 @@ export interface DiagnosisInput {
 export interface DiagnosisOptions {
   /** Level of the rule (default 0.05; see the module comment). */
   readonly alpha?: number;
-  /** Largest time shift searched, seconds (default 30). */
+  /**
+   * Largest lag searched (shift and warp), as a fraction of the horizon (default: the plan's
+   * `analysis.registration.span` in `diagnoseRun`, else 0.2).
+   */
+  readonly span?: number;
+  /** Largest lag searched in seconds; overrides `span` when given. */
   readonly maxShift?: number;
   /** Seed of the component solver for the reassessments (default: the engine's). */
   readonly seed?: number;
@@ -122,6 +148,8 @@ export interface Diagnosis {
   readonly kind: DiscrepancyKind;
   /** One sentence: why this label. */
   readonly reason: string;
+  /** For `timing`: how late or early, with an interval, and by which registration. */
+  readonly timing?: TimingSize;
   readonly curveStandsOut: boolean;
   readonly spreadStandsOut: boolean;
   readonly evidence: {
@@ -130,19 +158,69 @@ export interface Diagnosis {
     readonly fine: StatisticEvidence;
     /** Per-channel offset δ̂ in channel units. */
     readonly level: CorrectionEvidence & { readonly shift: readonly number[] };
-    /** τ̂ in seconds (> 0: the run is late); atLimit when it lies on the edge of the search. */
+    /**
+     * τ̂ in seconds (> 0: the run is late); atLimit when it lies on the edge of the search. The
+     * correction fields (pAfter, ratio, pRatio) are the shift's; `explains` is true when the shift
+     * or the warp explains the run (`explainedBy`).
+     */
     readonly timing: CorrectionEvidence & {
       readonly shift: number;
       /** Rank p-value of |τ̂| among the simulated curves' own |τ̂_i| (small: unusual timing). */
       readonly pShift: number;
       readonly atLimit: boolean;
+      /** Largest lag searched, seconds. */
+      readonly span: number;
+      /** 1 − α split-conformal interval for the run's shift (engine/registration.ts). */
+      readonly shiftInterval: readonly [number, number];
+      readonly explainedBy?: 'shift' | 'warp';
+      /** The monotone warp, fitted when the curve stands out and the shift does not explain it. */
+      readonly warp?: WarpEvidence;
     };
     /** Run noise sd / median simulated noise sd, per channel. */
     readonly spread: StatisticEvidence & { readonly ratio: readonly number[] };
   };
 }
 
-export const DIAGNOSIS_DEFAULTS = { alpha: 0.05, maxShift: 30 } as const;
+/** The monotone time warp of a run onto the mean (engine/registration.ts), and what it explains. */
+export interface WarpEvidence extends CorrectionEvidence {
+  /** Knot times (s, the simulations' clock) and the lags δ_j there (s, > 0: late). */
+  readonly knots: readonly number[];
+  readonly lags: readonly number[];
+  /**
+   * The lag at the end of the run's window, s, and its 1 − α split-conformal interval. The interval,
+   * pLag and pRatio need the simulated curves' warps, fitted only when the warped run no longer
+   * stands out (pAfter > α); otherwise they are NaN.
+   */
+  readonly lagAtEnd: number;
+  readonly lagInterval: readonly [number, number];
+  /** Times of the run (its own clock) by which 10 % and 90 % of the lag had built up. */
+  readonly buildUp: readonly [number, number];
+  /** max |δ| over the compared part, s, and its rank p-value among the simulated curves' (upper tail). */
+  readonly largest: number;
+  readonly pLag: number;
+  /**
+   * Share of the run's excess distance (D(0) over the median simulated curve's) that the warp
+   * removes, each curve warped alike: 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0)).
+   */
+  readonly explained: number;
+  readonly atLimit: boolean;
+}
+
+/** The size of a timing discrepancy, present when the label is `timing`. */
+export interface TimingSize {
+  readonly model: 'shift' | 'warp';
+  /** The shift, or the warp's lag at the end of the window, s (> 0: late). */
+  readonly lag: number;
+  /** Its 1 − α interval, s. */
+  readonly interval: readonly [number, number];
+  /** For a warp: where the lag built up, times of the run, s. */
+  readonly buildUp?: readonly [number, number];
+}
+
+/** The warp explains "most" of a discrepancy when it removes at least this share of the excess. */
+export const EXPLAINS_MOST = 0.5;
+
+export const DIAGNOSIS_DEFAULTS = { alpha: 0.05, span: DEFAULT_REGISTRATION.span } as const;
 const MAD_SCALE = 1.482602218505602; // 1 / Φ⁻¹(3/4)
 
 function median(values: ArrayLike<number>): number {
@@ -186,16 +264,21 @@ export function noiseSd(track: RawTrack): number[] {
   });
 }
 
-/** Trapezoid weights of the grid points in `mask` (runs of consecutive points; ./grid.ts rule). */
-function maskWeights(mask: Uint8Array, step: number): Float64Array {
-  const w = new Float64Array(mask.length);
-  for (let g = 0; g < mask.length; g++) {
-    if (!mask[g]) continue;
-    const left = g > 0 && mask[g - 1] === 1;
-    const right = g + 1 < mask.length && mask[g + 1] === 1;
-    w[g] = left || right ? ((left ? 1 : 0) + (right ? 1 : 0)) * (step / 2) : step / 2;
-  }
-  return w;
+/** D(0) of ./registration.ts: Σ_g Σ_c ω_cg (x_c(t_g) − m_c(t_g))² / Σ_g w_g over the window. */
+function zeroDistance(x: Float64Array, mean: Float64Array, w: Float64Array, jw: Float64Array): number {
+  const M = w.length;
+  let acc = 0;
+  let total = 0;
+  for (let g = 0; g < M; g++) total += w[g] > 0 ? w[g] : 0;
+  for (let d = 0; d < x.length; d++) if (w[d % M] > 0) acc += jw[d] * (x[d] - mean[d]) ** 2;
+  return total > 0 ? acc / total : Number.NaN;
+}
+
+/** (1 + #{reference ≥ value}) / (N + 1): how unusually large `value` is among the reference. */
+function upperRankP(reference: ArrayLike<number>, value: number): number {
+  let count = 0;
+  for (let i = 0; i < reference.length; i++) if (reference[i] >= value) count++;
+  return (1 + count) / (reference.length + 1);
 }
 
 /** (1 + #{reference ≤ value}) / (N + 1): how unusually small `value` is among the reference. */
@@ -203,83 +286,6 @@ function lowerRankP(reference: ArrayLike<number>, value: number): number {
   let count = 0;
   for (let i = 0; i < reference.length; i++) if (reference[i] <= value) count++;
   return (1 + count) / (reference.length + 1);
-}
-
-/** Sub-steps of the registration lattice per grid step. */
-const SUBSTEPS = 4;
-
-interface ShiftFit {
-  readonly shift: number;
-  readonly atLimit: boolean;
-  /** D(τ̂) / D(0) on the same grid points. */
-  readonly ratio: number;
-}
-
-/**
- * Shift registration of one curve to the mean (see the module comment). `w` are the grid weights of
- * the window and `jw` the joined weights (grid weight / s_c², channel blocks), as in the model.
- */
-function registerShift(curve: Float64Array, mean: Float64Array, w: Float64Array, jw: Float64Array, grid: Grid, maxShift: number): ShiftFit {
-  const M = w.length;
-  const C = curve.length / M;
-  let total = 0;
-  for (let g = 0; g < M; g++) total += w[g];
-  /** D(τ) and D(0) over the grid points where x(t_g + τ) is defined; NaN below half the window. */
-  const distance = (tau: number): { d: number; d0: number } => {
-    let acc = 0;
-    let acc0 = 0;
-    let used = 0;
-    for (let g = 0; g < M; g++) {
-      if (!(w[g] > 0)) continue;
-      const p = g + tau / grid.step;
-      const i = Math.floor(p + 1e-9);
-      const f = Math.max(0, p - i);
-      if (i < 0 || i >= M || !(w[i] > 0)) continue;
-      if (f > 1e-9 && (i + 1 >= M || !(w[i + 1] > 0))) continue;
-      for (let c = 0; c < C; c++) {
-        const d = c * M;
-        const x = f > 1e-9 ? (1 - f) * curve[d + i] + f * curve[d + i + 1] : curve[d + i];
-        acc += jw[d + g] * (x - mean[d + g]) ** 2;
-        acc0 += jw[d + g] * (curve[d + g] - mean[d + g]) ** 2;
-      }
-      used += w[g];
-    }
-    return used >= 0.5 * total && used > 0 ? { d: acc / used, d0: acc0 / used } : { d: Number.NaN, d0: Number.NaN };
-  };
-  const delta = grid.step / SUBSTEPS;
-  const J = Math.floor(maxShift / delta);
-  const values = Float64Array.from({ length: 2 * J + 1 }, (_, j) => distance((j - J) * delta).d);
-  let best = J;
-  for (let j = 0; j < values.length; j++) if (values[j] < values[best]) best = j;
-  let shift = (best - J) * delta;
-  const lo = best > 0 ? values[best - 1] : Number.NaN;
-  const hi = best + 1 < values.length ? values[best + 1] : Number.NaN;
-  const curvature = lo - 2 * values[best] + hi;
-  if (curvature > 0) shift -= Math.max(-0.5, Math.min(0.5, (hi - lo) / (2 * curvature))) * delta;
-  const { d, d0 } = distance(shift);
-  return { shift, atLimit: best === 0 || best === 2 * J, ratio: d0 > 0 ? d / d0 : 1 };
-}
-
-/** The curve read at t + shift, on the grid points where that time lies in the window. */
-function shiftedCurve(curve: Float64Array, mean: Float64Array, w: Float64Array, grid: Grid, shift: number): { curve: Float64Array; weights: Float64Array } {
-  const M = w.length;
-  const C = curve.length / M;
-  const mask = new Uint8Array(M);
-  const out = Float64Array.from(mean);
-  for (let g = 0; g < M; g++) {
-    if (!(w[g] > 0)) continue;
-    const p = g + shift / grid.step;
-    const i = Math.floor(p + 1e-9);
-    const f = Math.max(0, p - i);
-    if (i < 0 || i >= M || !(w[i] > 0)) continue;
-    if (f > 1e-9 && (i + 1 >= M || !(w[i + 1] > 0))) continue;
-    mask[g] = 1;
-    for (let c = 0; c < C; c++) {
-      const d = c * M;
-      out[d + g] = f > 1e-9 ? (1 - f) * curve[d + i] + f * curve[d + i + 1] : curve[d + i];
-    }
-  }
-  return { curve: out, weights: maskWeights(mask, grid.step) };
 }
 
 /**
@@ -373,7 +379,6 @@ function spreadEvidence(noise: DiagnosisInput['noise'], C: number): StatisticEvi
 export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}): Diagnosis {
   const { result, sims, channels: C, rule } = input;
   const alpha = options.alpha ?? DIAGNOSIS_DEFAULTS.alpha;
-  const maxShift = options.maxShift ?? DIAGNOSIS_DEFAULTS.maxShift;
   const M = input.grid.points.length;
   if (input.curve.length !== C * M || input.gridWeights.length !== M) {
     throw new RangeError(`diagnose: curve of ${input.curve.length} values and ${input.gridWeights.length} weights for ${C} channels × ${M} grid points`);
@@ -401,28 +406,70 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
   const level = { shift: lv.shift, ratio: lv.ratio, pRatio: levelRank, pAfter: levelP, explains: levelP > alpha && levelRank <= alpha };
 
   const { mean, weights: jw } = result.model;
-  const regs = all.map((x) => registerShift(x, mean, input.gridWeights, jw, input.grid, maxShift));
+  const span = options.maxShift ?? (options.span ?? DIAGNOSIS_DEFAULTS.span) * input.grid.horizon;
+  const regs = all.map((x) => registerShift(x, { target: mean, window: input.gridWeights, joined: jw, grid: input.grid, span }));
+  // The warp's roughness penalty in the units of D: the median simulated curve's distance D_i(0)
+  // (./registration.ts), so a lag change of one span between neighbouring knots costs as much as a
+  // typical curve's whole distance to the mean.
+  const target: RegistrationTarget = { target: mean, window: input.gridWeights, joined: jw, grid: input.grid, span, roughness: median(sims.map((x) => zeroDistance(x, mean, input.gridWeights, jw))) };
   const reg = regs[N];
-  const moved = shiftedCurve(input.curve, mean, input.gridWeights, input.grid, reg.shift);
-  let count = 0;
-  for (const v of moved.weights) if (v > 0) count++;
-  const timingP = count >= 4 ? reassess(moved.curve, moved.weights) : Number.NaN;
+  const moved = warpedCurve(input.curve, mean, input.gridWeights, input.grid, () => reg.shift);
+  const judged = (w: Float64Array): number => w.reduce((n, v) => n + (v > 0 ? 1 : 0), 0);
+  const timingP = judged(moved.weights) >= 4 ? reassess(moved.curve, moved.weights) : Number.NaN;
   const timingRank = lowerRankP(regs.slice(0, N).map((r) => r.ratio), reg.ratio);
-  let larger = 0;
-  for (let i = 0; i < N; i++) if (Math.abs(regs[i].shift) >= Math.abs(reg.shift)) larger++;
-  const shiftRank = (1 + larger) / (N + 1);
+  const shiftRank = upperRankP(regs.slice(0, N).map((r) => Math.abs(r.shift)), Math.abs(reg.shift));
+  const shiftExplains = timingP > alpha && shiftRank <= alpha;
+  const curveStandsOut = p.overall <= alpha;
+
+  // The warp, only where it can change the label: the curve stands out and the shift does not
+  // explain it.
+  let warp: WarpEvidence | undefined;
+  if (curveStandsOut && !shiftExplains) {
+    const fit = registerWarp(input.curve, target, reg.shift);
+    const warped = warpedCurve(input.curve, mean, input.gridWeights, input.grid, (s) => lagAt(fit, s));
+    const pAfter = judged(warped.weights) >= 4 ? reassess(warped.curve, warped.weights) : Number.NaN;
+    const largest = largestLag(fit);
+    const end = lagAtEnd(fit);
+    // The simulated curves' warps (N fits) only when the warped run no longer stands out: otherwise
+    // the warp cannot explain the run and its reference values are left NaN.
+    const refs = pAfter > alpha ? sims.map((x, i) => registerWarp(x, target, regs[i].shift)) : undefined;
+    const pLag = refs ? upperRankP(refs.map(largestLag), largest) : Number.NaN;
+    // Share of the run's excess distance over the median simulated curve that the warp removes,
+    // each curve warped alike: 1 − (D(ĥ) − med D_i(ĥ_i)) / (D(0) − med D_i(0)).
+    const excess = refs ? fit.distance0 - median(refs.map((f) => f.distance0)) : Number.NaN;
+    const explained = refs && excess > 0 ? 1 - (fit.distance - median(refs.map((f) => f.distance))) / excess : Number.NaN;
+    warp = {
+      knots: Array.from(fit.knots),
+      lags: Array.from(fit.lags),
+      lagAtEnd: end,
+      lagInterval: refs ? predictionInterval(end, refs.map(lagAtEnd), alpha) : [Number.NaN, Number.NaN],
+      buildUp: lagBuildUp(fit),
+      largest,
+      pLag,
+      atLimit: fit.atLimit,
+      ratio: fit.ratio,
+      pRatio: refs ? lowerRankP(refs.map((f) => f.ratio), fit.ratio) : Number.NaN,
+      explained,
+      pAfter,
+      explains: pAfter > alpha && explained >= EXPLAINS_MOST,
+    };
+  }
+  const explainedBy: 'shift' | 'warp' | undefined = shiftExplains ? 'shift' : warp?.explains ? 'warp' : undefined;
   const timing = {
     shift: reg.shift,
     pShift: shiftRank,
     atLimit: reg.atLimit,
+    span,
+    shiftInterval: predictionInterval(reg.shift, regs.slice(0, N).map((r) => r.shift), alpha),
     ratio: reg.ratio,
     pRatio: timingRank,
     pAfter: timingP,
-    explains: timingP > alpha && shiftRank <= alpha,
+    explains: explainedBy !== undefined,
+    ...(explainedBy !== undefined && { explainedBy }),
+    ...(warp !== undefined && { warp }),
   };
 
   const spread = spreadEvidence(input.noise, C);
-  const curveStandsOut = p.overall <= alpha;
   const spreadStandsOut = spread.pValue <= alpha;
   const evidence = { overall: { pValue: p.overall, z: zCurve }, shape, fine, level, timing, spread };
   const out = (kind: DiscrepancyKind, reason: string): Diagnosis => ({ kind, reason, curveStandsOut, spreadStandsOut, evidence });
@@ -433,9 +480,23 @@ export function diagnose(input: DiagnosisInput, options: DiagnosisOptions = {}):
   if (spreadStandsOut && (!curveStandsOut || spread.z >= zCurve)) {
     return out('spread', `noise sd ${spread.ratio.map((r) => `${fmt(r)}×`).join(', ')} the simulated median (p = ${fmt(spread.pValue)}, z = ${fmt(spread.z)})`);
   }
-  if (timing.explains && (!level.explains || timing.pAfter >= level.pAfter)) {
-    const when = timing.shift >= 0 ? `${fmt(timing.shift)} s late` : `${fmt(-timing.shift)} s early`;
-    return out('timing', `the run is ${when} (p = ${fmt(timing.pShift)} among simulated timings); re-timed, p = ${fmt(timing.pAfter)}`);
+  const timingAfter = explainedBy === 'warp' ? (warp?.pAfter ?? Number.NaN) : timing.pAfter;
+  if (timing.explains && (!level.explains || timingAfter >= level.pAfter)) {
+    const late = (x: number): string => (x >= 0 ? `${fmt(x)} s late` : `${fmt(-x)} s early`);
+    const range = (r: readonly [number, number]): string => `${fmt(r[0])} to ${fmt(r[1])} s`;
+    const level95 = `${fmt(100 * (1 - alpha))} %`;
+    if (explainedBy === 'warp' && warp !== undefined) {
+      const size: TimingSize = { model: 'warp', lag: warp.lagAtEnd, interval: warp.lagInterval, buildUp: warp.buildUp };
+      return {
+        ...out('timing', `the run ends ${late(warp.lagAtEnd)} (${level95} interval ${range(warp.lagInterval)}), the lag building up between t = ${fmt(warp.buildUp[0])} s and ${fmt(warp.buildUp[1])} s of the run; the time warp removes ${fmt(100 * Math.min(1, warp.explained))} % of its excess distance and leaves p = ${fmt(warp.pAfter)}, a shift of ${fmt(timing.shift)} s leaves p = ${fmt(timing.pAfter)}`),
+        timing: size,
+      };
+    }
+    const size: TimingSize = { model: 'shift', lag: timing.shift, interval: timing.shiftInterval };
+    return {
+      ...out('timing', `the run is ${late(timing.shift)} (${level95} interval ${range(timing.shiftInterval)}; p = ${fmt(timing.pShift)} among simulated timings); re-timed, p = ${fmt(timing.pAfter)}`),
+      timing: size,
+    };
   }
   if (level.explains) {
     return out('level', `offsets ${level.shift.map(fmt).join(', ')} explain ${fmt(1 - level.ratio)} of its model distance; removed, p = ${fmt(level.pAfter)}`);
@@ -476,6 +537,6 @@ export function diagnoseRun(
         sims: baseline.sims.map((s) => noiseSd(restrictTrack(s, window))),
       },
     },
-    { ...options, alpha: options.alpha ?? baseline.settings.alpha },
+    { ...options, alpha: options.alpha ?? baseline.settings.alpha, span: options.span ?? baseline.settings.registration?.span },
   );
 }

@@ -54,7 +54,20 @@ export interface AnalysisSettings {
    * combined evidence (engine/calibrate.ts, engine/event.ts): the same plan gives the same results.
    */
   readonly seed?: number;
+  /**
+   * Time registration of the diagnosis (engine/diagnosis.ts, engine/registration.ts): `span` is the
+   * largest lag searched, as a fraction of the vignette's horizon (shift in ±span·horizon, warp lags
+   * within the same bound). Absent: DEFAULT_REGISTRATION.
+   */
+  readonly registration?: RegistrationSettings;
 }
+
+export interface RegistrationSettings {
+  /** Largest lag searched, as a fraction of the horizon, in (0, 0.5]. */
+  readonly span: number;
+}
+
+export const DEFAULT_REGISTRATION: RegistrationSettings = { span: 0.2 };
 
 export const DEFAULT_ANALYSIS: AnalysisSettings = {
   alpha: 0.05,
@@ -64,4 +77,5 @@ export const DEFAULT_ANALYSIS: AnalysisSettings = {
   combination: 'fisher',
   gapFactor: 6,
   seed: 1,
+  registration: DEFAULT_REGISTRATION,
 };

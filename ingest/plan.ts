@@ -9,6 +9,7 @@ import { parse as parseYaml, YAMLParseError } from 'yaml';
 import { z } from 'zod';
 import {
   DEFAULT_ANALYSIS,
+  DEFAULT_REGISTRATION,
   type AnalysisSettings,
   type ChannelSpec,
   type ComponentRule,
@@ -117,6 +118,17 @@ const analysisSchema = z.strictObject({
     .max(4294967295, { error: 'must be an integer in [0, 4294967295]' })
     .default(DEFAULT_ANALYSIS.seed ?? 1)
     .describe('seed of the tie-breaking draws and Monte Carlo calibrations: the same plan and data give the same p-values'),
+  registration: z
+    .strictObject({
+      span: z
+        .number()
+        .gt(0, { error: 'must be in (0, 0.5]' })
+        .lte(0.5, { error: 'must be in (0, 0.5]' })
+        .default(DEFAULT_REGISTRATION.span)
+        .describe('largest time lag searched when a discrepancy is diagnosed, as a fraction of the vignette horizon'),
+    })
+    .prefault({})
+    .describe('time registration of the diagnosis: a time shift, or a smooth monotone time warp, of the live run onto the simulated mean'),
 });
 
 /** Report the second and later occurrences of a key in a list as `[index, field]` issues. */
@@ -184,6 +196,7 @@ function toEventPlan(doc: z.output<typeof planSchema>): EventPlan {
       combination: a.combination,
       gapFactor: a.gapFactor,
       seed: a.seed,
+      registration: { span: a.registration.span },
     },
   };
 }

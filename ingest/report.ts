@@ -97,7 +97,19 @@ export const runReportSchema = z.object({
     .object({
       kind: z.enum(['level', 'shape', 'fine', 'timing', 'spread', 'none']),
       reason: z.string(),
-      timeShift: z.number().optional().describe('for timing: best time shift in seconds (> 0: the live run is late)'),
+      timeShift: z
+        .number()
+        .optional()
+        .describe('for timing: how late the live run is, in seconds (> 0: late, < 0: early): the best time shift, or for a time warp the lag at the end of its window'),
+      timeShiftInterval: z
+        .tuple([z.number(), z.number()])
+        .optional()
+        .describe('for timing: 1 - alpha interval for timeShift, from the simulated runs\' own registrations (their natural timing scatter)'),
+      timing: z.enum(['shift', 'warp']).optional().describe('for timing: the registration that explains the run, a constant time shift or a smooth monotone time warp'),
+      lagBuildsUp: z
+        .tuple([z.number(), z.number()])
+        .optional()
+        .describe('for a time warp: times of the live run (s) by which 10 % and 90 % of the lag had built up'),
       levelShift: z.array(z.number()).optional().describe('for level: per-channel offset, channel units'),
     })
     .optional()
@@ -209,7 +221,11 @@ export function diagnosisRow(d: Diagnosis): DiagnosisRow {
   return {
     kind: d.kind,
     reason: d.reason,
-    timeShift: d.kind === 'timing' ? d.evidence.timing.shift : undefined,
+    timeShift: d.kind === 'timing' ? (d.timing?.lag ?? d.evidence.timing.shift) : undefined,
+    // JSON has no infinities: an interval with an open end (too few simulated runs for the level) is left out.
+    timeShiftInterval: d.timing && d.timing.interval.every(Number.isFinite) ? [d.timing.interval[0], d.timing.interval[1]] : undefined,
+    timing: d.timing?.model,
+    lagBuildsUp: d.timing?.buildUp ? [d.timing.buildUp[0], d.timing.buildUp[1]] : undefined,
     levelShift: d.kind === 'level' ? [...d.evidence.level.shift] : undefined,
   };
 }

@@ -241,7 +241,9 @@ export class PlRunDetail extends LitElement {
       )}
       ${j.diagnosis
         ? html`<span class="stat" title=${j.diagnosis.reason}
-            >kind: <strong>${j.diagnosis.kind}</strong>${j.diagnosis.timeShift !== undefined ? html` (shift <span class="num">${formatValue(j.diagnosis.timeShift, 3)}</span> s)` : nothing}</span
+            >kind: <strong>${j.diagnosis.kind}</strong>${j.diagnosis.timeShift !== undefined
+              ? html` (${j.diagnosis.timing === 'warp' ? 'lag at end' : 'shift'} <span class="num">${formatValue(j.diagnosis.timeShift, 3)}</span> s)`
+              : nothing}</span
           >`
         : nothing}
     </div>`;

@@ -7,12 +7,12 @@
 import { describe, expect, it } from 'vitest';
 import { assessRun, buildBaseline, smoothTrack } from '../../engine/assess.js';
 import { conformalAssess } from '../../engine/calibrate.js';
-import { diagnose, diagnoseRun, noiseSd, robustLogZ, type DiagnosisInput, type DiscrepancyKind } from '../../engine/diagnosis.js';
+import { diagnose, diagnoseRun, noiseSd, robustLogZ, type Diagnosis, type DiagnosisInput, type DiscrepancyKind } from '../../engine/diagnosis.js';
 import { fullWindow, windowWeights } from '../../engine/grid.js';
 import { meanCurve } from '../../engine/event.js';
 import { createRng } from '../../engine/rng.js';
 import type { RawTrack } from '../../engine/types.js';
-import { binomialInterval, expectClose } from '../support/compare.js';
+import { binomialInterval, binomialUpperTail, expectClose } from '../support/compare.js';
 import { SYNTHETIC_CHANNELS, SYNTHETIC_SETTINGS, H, sampleManoeuvreBaseline, sampleManoeuvreTrack, type ManoeuvreOptions } from '../support/synthetic.js';
 
 const channels = SYNTHETIC_CHANNELS;
@@ -101,19 +101,22 @@ describe('building blocks', () => {
 interface Outcome {
   counts: Record<DiscrepancyKind, number>;
   shifts: number[];
+  diagnoses: Diagnosis[];
 }
 
-function run(options: ManoeuvreOptions, reps: number, seed: number): Outcome {
+function run(options: ManoeuvreOptions, reps: number, seed: number, on = baseline): Outcome {
   const rng = createRng(seed);
   const counts: Record<DiscrepancyKind, number> = { none: 0, level: 0, shape: 0, fine: 0, timing: 0, spread: 0 };
   const shifts: number[] = [];
+  const diagnoses: Diagnosis[] = [];
   for (let i = 0; i < reps; i++) {
     const track = sampleManoeuvreTrack(rng, `live-${i}`, options);
-    const d = diagnoseRun(baseline, track, assessRun(baseline, track));
+    const d = diagnoseRun(on, track, assessRun(on, track));
     counts[d.kind]++;
+    diagnoses.push(d);
     if (d.kind === 'timing') shifts.push(d.evidence.timing.shift);
   }
-  return { counts, shifts };
+  return { counts, shifts, diagnoses };
 }
 
 describe('each label on runs built to show it (40 runs each; manoeuvre generator, N = 99, α = 0.05)', () => {
@@ -156,8 +159,84 @@ describe('each label on runs built to show it (40 runs each; manoeuvre generator
     const n = 100;
     const { counts } = run({}, n, 4200);
     const other = n - counts.none;
-    console.info(`diagnosis, null runs (of ${n}):`, counts, `rate of a label other than none ${other / n}`);
-    expect(other).toBeLessThanOrEqual(binomialInterval(n, 0.1, 0.99).hi);
+    const hi = binomialInterval(n, 0.1, 0.99).hi;
+    // Power of this check: the probability that a rule whose true rate of other labels is 25 %
+    // (2.5 times the bound) shows more than `hi` of 100, from the exact binomial tail.
+    const power = binomialUpperTail(n, 0.25, hi + 1);
+    console.info(`diagnosis, null runs (of ${n}):`, counts, `rate of a label other than none ${other / n}; bound ${hi}, power against 25 % ${power.toFixed(3)}`);
+    expect(power).toBeGreaterThan(0.9);
+    expect(other).toBeLessThanOrEqual(hi);
+  });
+});
+
+describe('timing by registration beyond ±30 s and through a warp (40 runs each; manoeuvre generator, N = 99, α = 0.05)', () => {
+  const reps = 40;
+  // The plan's registration span: 0.45 of the 100 s horizon, so shifts of 35 s are searched.
+  const wide = buildBaseline('V', H, channels, baseline.sims, { ...settings, registration: { span: 0.45 } });
+  const sims2 = createRng(12);
+
+  for (const seconds of [35, -35]) {
+    it(`whole track ${seconds > 0 ? 'late' : 'early'} by ${Math.abs(seconds)} s, span 0.45 × horizon → timing in at least 75 % of runs, median |τ̂ − τ| ≤ 1.5 s; the 95 % interval covers τ at the binomial rate`, () => {
+      const { counts, diagnoses } = run({ discrepancy: { kind: 'timeShift', seconds } }, reps, 4300 + seconds, wide);
+      const timed = diagnoses.filter((d) => d.kind === 'timing');
+      const errors = timed.map((d) => Math.abs((d.timing?.lag ?? Number.NaN) - seconds)).sort((a, b) => a - b);
+      // Coverage of the shift interval over all runs (the interval is reported whatever the label).
+      const covered = diagnoses.filter((d) => d.evidence.timing.shiftInterval[0] <= seconds && seconds <= d.evidence.timing.shiftInterval[1]).length;
+      const band = binomialInterval(reps, 0.95, 0.99);
+      console.info(
+        `diagnosis, time shift ${seconds} s, span 45 s (of ${reps}):`,
+        counts,
+        `by shift ${timed.filter((d) => d.timing?.model === 'shift').length}, by warp ${timed.filter((d) => d.timing?.model === 'warp').length};`,
+        `|lag − τ|: median ${errors[Math.floor(errors.length / 2)]?.toFixed(2)} s, max ${errors.at(-1)?.toFixed(2)} s, within 3 s ${errors.filter((e) => e <= 3).length} of ${errors.length};`,
+        `interval covers τ in ${covered} of ${reps} (binomial 99 % band of 95 %: ${band.lo}..${band.hi})`,
+      );
+      expect(counts.timing / reps).toBeGreaterThanOrEqual(0.75);
+      // As for ±6 s: the turn time varies with sd 1 s; with a third of the window lost to the
+      // shift, the tails are wider, which the interval accounts for (its coverage is the check).
+      expect(errors[Math.floor(errors.length / 2)]).toBeLessThanOrEqual(1.5);
+      expect(covered).toBeGreaterThanOrEqual(band.lo);
+      for (const d of diagnoses) expect(d.evidence.timing.span).toBeCloseTo(45, 9);
+    });
+  }
+
+  it('the default span (0.2 × horizon = 20 s) does not reach a 35 s delay: the shift stops at its edge', () => {
+    const track = sampleManoeuvreTrack(createRng(4400), 'late', { discrepancy: { kind: 'timeShift', seconds: 35 } });
+    const d = diagnoseRun(baseline, track, assessRun(baseline, track));
+    expect(d.evidence.timing.span).toBeCloseTo(20, 9);
+    expect(d.evidence.timing.atLimit).toBe(true);
+  });
+
+  it('a lag of 12 s building up between t = 55 s and 75 s, between two manoeuvres (50 s and 80 s) → timing by the warp in at least 75 % of runs, the lag at the end within 3 s of 12 s and built up where the ramp is in 90 % of them; the interval covers 12 s at the binomial rate', () => {
+    // Two timing landmarks: the first manoeuvre sees no lag, the second the full 12 s, so no shift
+    // fits both. Simulated runs with the same two manoeuvres.
+    const twoTurns = buildBaseline('V', H, channels, Array.from({ length: 99 }, (_, i) => sampleManoeuvreTrack(sims2, `sim-${i}`, { secondTurn: 80 })), settings);
+    const ramp = { kind: 'timeWarp', lag: 12, from: 55, to: 75 } as const;
+    const { counts, diagnoses } = run({ discrepancy: ramp, secondTurn: 80 }, reps, 4500, twoTurns);
+    const timed = diagnoses.filter((d) => d.kind === 'timing');
+    const warped = timed.filter((d) => d.timing?.model === 'warp');
+    const errors = warped.map((d) => Math.abs((d.timing?.lag ?? Number.NaN) - ramp.lag)).sort((a, b) => a - b);
+    // True build-up on the run's clock: 10 % of the lag at s = 57 (run time 58.2 s), 90 % at s = 73
+    // (run time 83.8 s). The warp's knots are 100/6 s apart, so the 90 % point is resolved to about
+    // one knot interval; the 10 % point more loosely (no landmark between 0 and 50 s holds the lag
+    // at 0 there), so only its order is checked: before the true 90 % point.
+    const true90 = 73 + 0.9 * ramp.lag;
+    const inside = warped.filter((d) => {
+      const [a, b] = d.timing?.buildUp ?? [Number.NaN, Number.NaN];
+      return Math.abs(b - true90) <= 100 / 6 && a <= true90;
+    }).length;
+    const covered = warped.filter((d) => d.timing!.interval[0] <= ramp.lag && ramp.lag <= d.timing!.interval[1]).length;
+    const band = binomialInterval(warped.length, 0.95, 0.99);
+    console.info(
+      `diagnosis, lag of 12 s built up over 55..75 s (of ${reps}):`,
+      counts,
+      `by shift ${timed.length - warped.length}, by warp ${warped.length};`,
+      `|lag at end − 12|: median ${errors[Math.floor(errors.length / 2)]?.toFixed(2)} s, max ${errors.at(-1)?.toFixed(2)} s, within 3 s ${errors.filter((e) => e <= 3).length} of ${errors.length};`,
+      `build-up where the ramp is ${inside} of ${warped.length} (${warped.map((d) => d.timing!.buildUp!.map((x) => x.toFixed(0)).join('..')).join(', ')}); interval covers 12 s in ${covered} of ${warped.length} (binomial 99 % band of 95 %: ${band.lo}..${band.hi})`,
+    );
+    expect(warped.length / reps).toBeGreaterThanOrEqual(0.75);
+    expect(errors.filter((e) => e <= 3).length / errors.length).toBeGreaterThanOrEqual(0.9);
+    expect(inside / warped.length).toBeGreaterThanOrEqual(0.9);
+    expect(covered).toBeGreaterThanOrEqual(band.lo);
   });
 });
 

@@ -59,7 +59,7 @@ describe('parsePlan: valid plans', () => {
     const doc = {
       ...minimal(),
       description: 'two lanes',
-      analysis: { alpha: 0.5, components: { fixed: 4 }, gridSize: 16, segments: 400, combination: 'cauchy', gapFactor: 1.5, seed: 42 },
+      analysis: { alpha: 0.5, components: { fixed: 4 }, gridSize: 16, segments: 400, combination: 'cauchy', gapFactor: 1.5, seed: 42, registration: { span: 0.35 } },
     };
     const plan = parsePlan(JSON.stringify(doc), 'plan.json');
     expect(plan.description).toBe('two lanes');
@@ -71,7 +71,10 @@ describe('parsePlan: valid plans', () => {
       combination: 'cauchy',
       gapFactor: 1.5,
       seed: 42,
+      registration: { span: 0.35 },
     });
+    // The registration span defaults to 0.2 of the horizon, also inside an empty block.
+    expect(parsePlan(JSON.stringify({ ...minimal(), analysis: { registration: {} } }), 'p.json').analysis.registration).toEqual({ span: 0.2 });
     const frac = parsePlan(JSON.stringify({ ...minimal(), analysis: { components: { varianceFraction: 0.8 } } }), 'p.json');
     expect(frac.analysis.components).toEqual({ kind: 'variance', fraction: 0.8 });
   });
@@ -153,6 +156,10 @@ const invalid: [string, string, (d: Record<string, unknown>) => void][] = [
   ['segments 401', 'analysis.segments', (d) => (d.analysis = { segments: 401 })],
   ['unknown combination', 'analysis.combination', (d) => (d.analysis = { combination: 'bonferroni' })],
   ['gapFactor 1', 'analysis.gapFactor', (d) => (d.analysis = { gapFactor: 1 })],
+  ['registration span 0', 'analysis.registration.span', (d) => (d.analysis = { registration: { span: 0 } })],
+  ['registration span above 0.5', 'analysis.registration.span', (d) => (d.analysis = { registration: { span: 0.6 } })],
+  ['registration span in seconds', 'analysis.registration.span', (d) => (d.analysis = { registration: { span: '30 s' } })],
+  ['unknown registration key', 'analysis.registration', (d) => (d.analysis = { registration: { maxShift: 30 } })],
   ['unknown analysis key', 'analysis', (d) => (d.analysis = { alpah: 0.1 })],
   ['analysis not an object', 'analysis', (d) => (d.analysis = 0.05)],
 ];
@@ -257,6 +264,8 @@ describe('planJsonSchema', () => {
     expect(analysis.gridSize).toMatchObject({ type: 'integer', minimum: 16, maximum: 2048, default: 128 });
     expect(analysis.combination.enum).toEqual(['fisher', 'stouffer', 'tippett', 'cauchy']);
     expect(analysis.components.anyOf).toHaveLength(2);
+    const registration = analysis.registration.properties as Record<string, Record<string, unknown>>;
+    expect(registration.span).toMatchObject({ default: 0.2, exclusiveMinimum: 0, maximum: 0.5 });
     expect(props.channels).toMatchObject({ minItems: 1 });
   });
 });

@@ -41,6 +41,13 @@ export function binomialMass(n: number, p: number, lo: number, hi: number): numb
   return s;
 }
 
+/** P(X ≥ k) for X ~ Binomial(n, p), from the exact pmf (computed in log space). */
+export function binomialUpperTail(n: number, p: number, k: number): number {
+  let acc = 0;
+  for (let j = Math.max(0, Math.ceil(k)); j <= n; j++) acc += Math.exp(logChoose(n, j) + j * Math.log(p) + (n - j) * Math.log1p(-p));
+  return Math.min(1, acc);
+}
+
 function logChoose(n: number, k: number): number {
   let s = 0;
   for (let i = 1; i <= k; i++) s += Math.log(n - k + i) - Math.log(i);

@@ -81,13 +81,33 @@ export const TURN_TIME = 50;
 export const TURN_JITTER_SD = 1;
 
 /** Discrepancies of the manoeuvre generator: those above, or the whole track late by `seconds`. */
-export type ManoeuvreDiscrepancy = Discrepancy | { kind: 'timeShift'; seconds: number };
+export type ManoeuvreDiscrepancy =
+  | Discrepancy
+  | { kind: 'timeShift'; seconds: number }
+  /** A lag that builds up linearly from 0 at `from` to `lag` at `to` (times of the simulations) and then stays. */
+  | { kind: 'timeWarp'; lag: number; from: number; to: number };
+
+/**
+ * The simulations' time s that a run with a `timeWarp` is at when its clock reads t: the inverse of
+ * h(s) = s + δ(s), δ = 0 before `from`, linear to `lag` at `to`, `lag` after.
+ */
+export function warpInverse(t: number, d: { lag: number; from: number; to: number }): number {
+  if (t <= d.from) return t;
+  const slope = 1 + d.lag / (d.to - d.from);
+  if (t <= d.to + d.lag) return d.from + (t - d.from) / slope;
+  return t - d.lag;
+}
 
 export interface ManoeuvreOptions {
   readonly dtNominal?: number;
   readonly discrepancy?: ManoeuvreDiscrepancy;
   /** Multiplies the measurement noise sd of both channels (default 1): a noisier run. */
   readonly noiseFactor?: number;
+  /**
+   * Time of a second manoeuvre (s; default none): channel 1 steps back down by 8 deg along a
+   * logistic of scale 2 s at secondTurn + TURN_JITTER_SD·z, a second timing landmark.
+   */
+  readonly secondTurn?: number;
 }
 
 /**
@@ -95,7 +115,8 @@ export interface ManoeuvreOptions {
  * ("angle") steps up by 8 deg along a logistic of scale 2 s, and channel 0 ("position") changes slope
  * by −0.5 m/s through a softplus of scale 3 s. The timing of the manoeuvre varies between runs, so a
  * time shift of a few seconds is a discrepancy only beyond that natural variation. A `timeShift`
- * discrepancy evaluates the whole truth (trend, modes, manoeuvre) at t − seconds: the run is late.
+ * discrepancy evaluates the whole truth (trend, modes, manoeuvre) at t − seconds: the run is late; a
+ * `timeWarp` evaluates it at `warpInverse(t)`: the run falls behind between `from` and `to`.
  * Other discrepancies act on channel 0 as in `sampleTrack`. Noise sd 1 m and 0.05 deg (× noiseFactor).
  */
 export function sampleManoeuvreTrack(rng: Rng, id: string, options: ManoeuvreOptions = {}): RawTrack {
@@ -104,19 +125,22 @@ export function sampleManoeuvreTrack(rng: Rng, id: string, options: ManoeuvreOpt
   const k = options.noiseFactor ?? 1;
   const a = Float64Array.from({ length: 6 }, () => rng.normal());
   const turn = TURN_TIME + TURN_JITTER_SD * rng.normal();
-  const lag = d.kind === 'timeShift' ? d.seconds : 0;
-  const rest: Discrepancy = d.kind === 'timeShift' ? { kind: 'none' } : d;
+  // Drawn only for a second manoeuvre, so that the other draws keep their order.
+  const second = options.secondTurn !== undefined ? options.secondTurn + TURN_JITTER_SD * rng.normal() : Number.NaN;
+  const clock = (s: number): number => (d.kind === 'timeShift' ? s - d.seconds : d.kind === 'timeWarp' ? warpInverse(s, d) : s);
+  const rest: Discrepancy = d.kind === 'timeShift' || d.kind === 'timeWarp' ? { kind: 'none' } : d;
   const t: number[] = [];
   const y0: number[] = [];
   const y1: number[] = [];
   for (let s = rng.uniform() * 0.2 * dt; s <= H; s += dt * (0.8 + 0.4 * rng.uniform())) {
     if (rng.uniform() < 0.03) continue;
-    const u = s - lag;
+    const u = clock(s);
     const x = (u - turn) / 3;
     const softplus = 3 * (x > 30 ? x : Math.log1p(Math.exp(x)));
     t.push(s);
     y0.push(truthAt(u, a, 0, rest) - 0.5 * softplus + k * NOISE[0] * rng.normal());
-    y1.push(truthAt(u, a, 1, rest) + 8 / (1 + Math.exp(-(u - turn) / 2)) + k * NOISE[1] * rng.normal());
+    const back = Number.isNaN(second) ? 0 : 8 / (1 + Math.exp(-(u - second) / 2));
+    y1.push(truthAt(u, a, 1, rest) + 8 / (1 + Math.exp(-(u - turn) / 2)) - back + k * NOISE[1] * rng.normal());
   }
   return { vignette: 'V', track: id, t: Float64Array.from(t), values: [Float64Array.from(y0), Float64Array.from(y1)] };
 }
