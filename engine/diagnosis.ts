@@ -25,9 +25,8 @@
  *            model weighting keeps it. Evidence: δ̂ (channel units); the fall ratio Q(δ̂)/Q(0) and its
  *            rank among the simulated curves' own fall ratios (pRatio: small when the offset explains
  *            unusually much); pAfter, the overall conformal p-value of the corrected run x − δ̂.
- *   timing   registration of the run to the mean m of the N + 1 curves (the simulated mean up to
- *            1/(N + 1) of the run's deviation, so that the run and every simulated curve are
- *            registered alike), by ./registration.ts (least squares on the judged window, Ramsay &
+ *   timing   registration of the run to the mean m of the N simulated curves (the mean of the
+ *            model the run is judged by; every simulated curve is registered to the same m), by ./registration.ts (least squares on the judged window, Ramsay &
  *            Silverman, "Functional Data Analysis", 2nd ed., Springer 2005, registration chapter,
  *            doi:10.1007/b98888), with lags searched up to span = the plan's
  *            analysis.registration.span × the horizon (0.2 × horizon by default):
@@ -75,8 +74,9 @@
  *      because a time shift or an offset also shows in the fixed-time statistics; if both explain,
  *      the larger pAfter wins. Otherwise `shape` when z(score) ≥ z(residual), else `fine`.
  *
- * The reassessments of corrected runs are full conformal (./calibrate.ts conformalAssess), so pAfter
- * is on the same scale as the original p-value; the correction is fitted to the run alone, which
+ * The reassessments of corrected runs use the same calibration as the run (./calibrate.ts
+ * conformalAssess; on the run's own window its cached reference), so pAfter is on the same scale as
+ * the original p-value; the correction is fitted to the run alone, which
  * favours "explained", hence the second condition, which ranks the run's correction among the same
  * correction fitted to every simulated curve. Cost: two extra conformal fits and N + 1 shift
  * registrations; for a run that stands out and is not explained by a shift, one more conformal fit
