@@ -142,5 +142,7 @@ function part2(): void {
   console.log(`(checksum ${sink.toFixed(3)})`);
 }
 
-part1();
-part2();
+// BENCH_PART=rates or BENCH_PART=times runs one part only.
+const only = process.env.BENCH_PART;
+if (only !== 'times') part1();
+if (only !== 'rates') part2();
