@@ -156,6 +156,8 @@ export class Journal {
     try {
       const file = new Database(path, { readonly: true, fileMustExist: true });
       try {
+        // Reading the schema fails at once on a file that is not an SQLite database.
+        file.prepare('SELECT count(*) FROM sqlite_master').get();
         const image = file.serialize();
         // A WAL-mode file (header bytes 18-19 = 2) cannot be opened from memory; the copy is
         // marked as a rollback-journal database (sqlite.org/fileformat.html, "File format version numbers").
@@ -166,7 +168,9 @@ export class Journal {
         file.close();
       }
     } catch (e) {
-      throw new JournalError('JOURNAL_UNWRITABLE', `cannot read the journal ${path}: ${e instanceof Error ? e.message : String(e)}`);
+      const reason = e instanceof Error ? e.message : String(e);
+      if (/not a database/.test(reason)) throw new JournalError('JOURNAL_VERSION', `${path} is not a plumbline journal: ${reason}`);
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot read the journal ${path}: ${reason}`);
     }
     let j: Journal;
     try {
