@@ -219,5 +219,5 @@ export function evidenceChart(martingale: readonly number[], threshold: number, 
       },
     ],
   };
-  return { svg: renderSvg(option, 520, 200, key), description: `the event's anytime-valid evidence after each completed run (log scale) against its threshold ${threshold}` };
+  return { svg: renderSvg(option, 440, 190, key), description: `the event's anytime-valid evidence after each completed run (log scale) against its threshold ${threshold}` };
 }

@@ -45,7 +45,7 @@ export function eventHeadline(report: AssessmentReport): EventHeadline {
     verdict: c ? (c.pValue <= report.plan.alpha ? 'distinguishable' : 'not distinguishable') : 'not judged',
     overall: c ? { method: c.method, statistic: c.statistic, pValue: c.pValue, count: c.count } : undefined,
     perStatistic,
-    basis: `${METHOD_NAMES[method]} over the ${judged.length} completed run${judged.length === 1 ? '' : 's'}, fixed-sample (valid for a number of runs fixed in advance); per statistic, combined here from the per-run p-values`,
+    basis: `${METHOD_NAMES[method]} over the ${judged.length} completed run${judged.length === 1 ? '' : 's'}, valid for a number of runs fixed in advance; each statistic combined from its per-run p-values`,
   };
 }
 

@@ -84,14 +84,20 @@ th { background: #eef1f5; }
 td.n, th.n { text-align: right; }
 figure { margin: .5rem 0; } figure svg { display: block; max-width: 100%; height: auto; }
 figcaption { font-size: 12px; color: #4f5968; }
+.evidence { display: flex; flex-wrap: wrap; gap: 0 1rem; align-items: flex-start; } .evidence > div { flex: 1 1 22rem; }
 .row { display: flex; flex-wrap: wrap; gap: .4rem 1rem; align-items: flex-start; }
 .row figure { margin: .2rem 0; }
 dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: .1rem .8rem; margin: .4rem 0; }
 dl.facts dt { font-weight: 700; } dl.facts dd { margin: 0; }
 .note-text { white-space: pre-wrap; }
-@page { size: A4; margin: 14mm 12mm; }
+@page { size: A4; margin: 10mm 11mm; }
 @media print {
-  body { margin: 0; max-width: none; font-size: 11pt; padding: 0; }
+  body { margin: 0; max-width: none; font-size: 9.5pt; line-height: 1.3; padding: 0; }
+  h1 { font-size: 15pt; } h2 { font-size: 11.5pt; margin: .7rem 0 .25rem; } h3 { font-size: 10.5pt; }
+  table { font-size: 8pt; margin: .3rem 0; } th, td { padding: .08rem .35rem; }
+  .cautions { padding: .15rem .7rem; margin: .35rem 0; } .status { padding: .2rem .5rem; margin: .35rem 0; }
+  ul.settings { columns: 2; column-gap: 1.5rem; margin: .2rem 0; }
+  .evidence figure { flex: 0 0 300px; width: 300px; margin: 0; } .evidence svg { width: 300px; }
   .summary { break-after: page; }
   section.run { break-before: page; }
   section.after-runs { break-before: page; }
@@ -119,7 +125,7 @@ function headlineBlock(h: EventHeadline): string {
   });
   return `${verdict}
 ${table(['statistic', 'runs', `${METHOD_NAMES[h.method]}: statistic`, 'combined p', 'against α'], rows, 'Each statistic combined across the completed runs')}
-<p class="muted">Basis: ${e(h.basis)}. Read the p-values only for a number of runs fixed before the event; the anytime-valid evidence below stays valid however runs were added or stopped.</p>`;
+<p class="muted">Basis: ${e(h.basis)}. The anytime-valid evidence below stays valid however runs were added or stopped.</p>`;
 }
 
 const STAT_LABELS: Record<(typeof STATISTIC_NAMES)[number], string> = {
@@ -132,11 +138,11 @@ function evidenceBlock(results: DebriefResults): string {
   const ev = results.evidence;
   if (!ev) return '<p>No anytime-valid evidence: no run has been judged yet, or the report was made from a document without it.</p>';
   const chart = ev.afterEachRun.length > 0 ? evidenceChart(ev.afterEachRun, ev.threshold, 'ev') : undefined;
-  return `<p><strong>Anytime-valid evidence:</strong> ${num(ev.current, 2)} against the threshold ${num(ev.threshold, 0)} — ${
+  return `<div class="evidence"><div><p><strong>Anytime-valid evidence:</strong> ${num(ev.current, 2)} against the threshold ${num(ev.threshold, 0)} — ${
     ev.established ? `<strong>a discrepancy is established</strong>${ev.crossedAt ? ` (the threshold was reached at completed run ${ev.crossedAt})` : ''}` : '<strong>no discrepancy established</strong>'
   }.</p>
-<p>What it means: the evidence starts at 1 and grows when runs look unlike the simulation. Reaching ${num(ev.threshold, 0)} (1/α) establishes a discrepancy with a false-alarm probability of at most α, however the team decided to add runs or stop. Staying below it is not proof of agreement.</p>
-${figure(chart, 'The event\'s evidence after each completed run (log scale) and its threshold.')}`;
+<p>What it means: the evidence starts at 1 and grows when runs look unlike the simulation. Reaching ${num(ev.threshold, 0)} (1/α) establishes a discrepancy with a false-alarm probability of at most α, however the team decided to add runs or stop. Staying below it is not proof of agreement.</p></div>
+${figure(chart, 'Evidence after each completed run; the threshold dashed.')}</div>`;
 }
 
 function vignetteTable(report: AssessmentReport, results: DebriefResults): string {
@@ -208,7 +214,13 @@ function runSection(report: AssessmentReport, r: RunReport, detail: RunDetail | 
       parts.push(charts.join('\n'));
       const hist = s && detail.reference ? STATISTIC_NAMES.map((k) => figure(histogramChart(detail.reference?.[k] ?? [], s[k].value, k, `r${index + 1}h${k}`), `${k}: simulated runs, this run marked`)).join('') : '';
       parts.push(`<div class="row">${hist}</div>`);
-      parts.push(figure(scoreChart(detail, `r${index + 1}s`), 'Scores of the simulated runs on the first two principal components, and the path of this run as it flew.'));
+      const oneComponent = detail.scores !== undefined && detail.scores.sims[1].every((v) => v === 0);
+      parts.push(
+        figure(
+          scoreChart(detail, `r${index + 1}s`),
+          `Scores of the simulated runs on the first two principal components, and the path of this run as it flew.${oneComponent ? ' Only one component was kept for this run, so only the horizontal position means anything.' : ''}`,
+        ),
+      );
     } else {
       parts.push('<p class="muted">No charts: the report was made from an assessment document, which holds no tracks or envelopes (make it from the journal or the running service for charts).</p>');
     }
@@ -293,7 +305,7 @@ export function renderReport(input: DebriefInput, results: DebriefResults, headl
 ${statusBlock(results)}
 ${cautions(report.cautions, 'Read this first')}
 <h2>The event</h2>
-<ul>${settingsInWords(report.plan).map((s) => `<li>${e(s)}</li>`).join('')}</ul>
+<ul class="settings">${settingsInWords(report.plan).map((s) => `<li>${e(s)}</li>`).join('')}</ul>
 <p>Runs completed: ${results.event.runsCompleted} live run${results.event.runsCompleted === 1 ? '' : 's'} judged over ${report.vignettes.filter((v) => v.runs > 0).length} of ${report.vignettes.length} vignettes${results.event.runsInFlight.length ? `; ${results.event.runsInFlight.length} in flight (not included)` : ''}.</p>
 <h2>Verdict</h2>
 ${headlineBlock(headline)}

@@ -2,7 +2,8 @@
  * The debrief report in Debian's Chromium (driven by playwright-core): WCAG 2.1 A/AA rules of
  * axe-core pass on screen and with print styles; printed to PDF, the document outline has one
  * entry per run section and every run starts on a page of its own; nothing is requested from any
- * origin. Writes the PDF and a PNG of its first page to test/artifacts/ for review.
+ * origin; the one-page summary fits an A4 page. Writes the PDF and a PNG of the first page's content
+ * box to test/artifacts/ (git-ignored) for review.
  *
  * Needs /usr/bin/chromium (`apt-get update && apt-get install -y chromium`); without it the test
  * fails and says so.
@@ -65,7 +66,7 @@ describe('the debrief report in a browser', () => {
     expect(v, JSON.stringify(v, null, 1)).toEqual([]);
   });
 
-  it('the check is live: the same rules flag grey text of 2.8:1 on white (WCAG 2.1 SC 1.4.3 asks 4.5:1)', async () => {
+  it('the check is live: the same rules flag grey text of 2.5:1 on white (WCAG 2.1 SC 1.4.3 asks 4.5:1)', async () => {
     const other = await (browser as Browser).newPage();
     await other.setContent('<!doctype html><html lang="en"><head><title>contrast</title></head><body><main><p style="color:#9aa5b4">grey on white</p></main></body></html>');
     const v = await axeViolations(other);
@@ -97,12 +98,16 @@ describe('the debrief report in a browser', () => {
     expect(breaks).toEqual(report.runs.map(() => 'page'));
   });
 
-  it('writes a PNG of the first printed page for review, and requested nothing beyond the file', async () => {
-    // A4 at 96 px per inch, with the print styles.
-    await page.setViewportSize({ width: 794, height: 1123 });
+  it('the summary fits the first page; a PNG of that page is written for review; nothing was requested beyond the file', async () => {
+    // The content box of an A4 page with the report's @page margins (10 mm × 11 mm), at 96 px per inch.
+    const mm = 96 / 25.4;
+    const box = { width: Math.floor((210 - 22) * mm), height: Math.floor((297 - 20) * mm) };
+    await page.setViewportSize(box);
     await page.emulateMedia({ media: 'print' });
+    const summary = await page.locator('section.summary').evaluate((el) => el.getBoundingClientRect().height);
     await page.screenshot({ path: join(ARTIFACTS, 'debrief-first-page.png') });
     await page.emulateMedia({ media: 'screen' });
+    expect(summary).toBeLessThanOrEqual(box.height);
     expect(requests.filter((u) => !u.startsWith('file://'))).toEqual([]);
   });
 });
