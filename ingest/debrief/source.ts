@@ -14,7 +14,7 @@ import { assessmentReportSchema, type AssessmentReport } from '../report.js';
 import type { EventService } from '../service/event-service.js';
 import { Journal } from '../service/journal.js';
 import { DEFAULT_LIMITS } from '../service/limits.js';
-import { openEvent } from '../service/server.js';
+import { openEvent, ServeError } from '../service/server.js';
 import type { EventView, RunDetail } from '../service/view.js';
 import { runKey } from './keys.js';
 
@@ -62,7 +62,11 @@ export function fromService(service: EventService, source: DebriefSource): Debri
 export async function fromJournal(path: string, options: { baselinePath?: string; onProgress?: (label: string, done: number, total: number) => void } = {}): Promise<DebriefInput> {
   const journal = Journal.snapshot(path);
   try {
-    const { service, assessor } = await openEvent(journal, { journalPath: path, baselinePath: options.baselinePath, limits: DEFAULT_LIMITS, inProcessCompute: true, onProgress: options.onProgress });
+    const opened = await openEvent(journal, { journalPath: path, baselinePath: options.baselinePath, limits: DEFAULT_LIMITS, inProcessCompute: true, onProgress: options.onProgress }).catch((e: unknown) => {
+      if (e instanceof ServeError && /baseline file/.test(e.message)) throw new DebriefError('UNREADABLE', `${e.message}: give its new place with --baseline FILE`);
+      throw e;
+    });
+    const { service, assessor } = opened;
     try {
       await service.settle(600_000);
       return fromService(service, { kind: 'journal', name: basename(path) });

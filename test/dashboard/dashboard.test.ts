@@ -213,6 +213,11 @@ describe('the dashboard against a live event', () => {
     const done2 = await axeViolations(page);
     figures.axeComplete = done2.map((v) => ({ id: v.id, nodes: v.nodes.length }));
     expect(done2, JSON.stringify(done2, null, 1)).toEqual([]);
+    // And as printed from the browser.
+    await page.emulateMedia({ media: 'print' });
+    const printed = await axeViolations(page);
+    await page.emulateMedia({ media: 'screen' });
+    expect(printed, JSON.stringify(printed, null, 1)).toEqual([]);
   });
 
   it('offers the debrief package of the event as one .zip download from the header', async () => {
