@@ -5,6 +5,7 @@ import { pValue } from './parts.js';
 import type { EventStore, NoteInput } from './store.js';
 import { COLORS, pageVars, shared } from './theme.js';
 import type { EvidenceSeries } from './evidence-timeline.js';
+import './debrief-link.js';
 import './event-overview.js';
 import './evidence-timeline.js';
 import './log-panel.js';
@@ -213,6 +214,7 @@ export class PlApp extends LitElement {
         <span class="event-name">${ev?.plan.name ?? 'connecting…'}</span>
         ${this.renderConnection(v)}
         <span class="spacer"></span>
+        ${ev ? html`<pl-debrief-link .event=${ev}></pl-debrief-link>` : nothing}
         ${this.renderCombined(ev)}
       </header>
       ${ev?.cautions.length

@@ -5,14 +5,15 @@
  * the dashboard's address. The service keeps running after the last run (Ctrl-C stops it), unless
  * `exitWhenDone` is set.
  */
-import { accessSync, constants, mkdirSync, rmSync, writeFileSync } from 'node:fs';
+import { accessSync, constants, mkdirSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import type { RawTrack } from '../../engine/types.js';
 import { replay } from '../service/replay.js';
 import { startServer, type RunningServer } from '../service/server.js';
 import type { AssessmentReport } from '../report.js';
 import { combinedLines, evidenceLine } from './assess.js';
-import { renderDebrief } from './debrief.js';
+import { buildPackage, writePackage } from '../debrief/package.js';
+import { fromService } from '../debrief/source.js';
 import { writeDemoFiles } from './demo-files.js';
 import { formatP, table } from './format.js';
 import { terminalProgress } from './progress.js';
@@ -89,9 +90,9 @@ export async function runDemo(options: DemoRunOptions): Promise<{ server: Runnin
   await server.service.settle();
   const report = server.service.exportReport();
   say(`replayed ${summary.points} points in ${summary.tracks} runs`);
-  const debrief = join(options.dir, 'debrief.html');
-  writeFileSync(debrief, renderDebrief(report, 'Demo debrief'));
-  say(`debrief written to ${debrief}`);
+  const debrief = join(options.dir, 'debrief');
+  writePackage(debrief, buildPackage(fromService(server.service, { kind: 'service', name: server.url }), { title: 'Demo debrief' }));
+  say(`debrief package written to ${debrief}/ (report.html, results.json, runs.csv, notes.csv)`);
   say(verdictTable(report));
   if (report.combined) for (const line of combinedLines(report.combined)) say(line);
   if (report.sequential) say(evidenceLine(report.sequential));

@@ -7,7 +7,7 @@
  *   schema      print the JSON Schema of the plan, the assessment document or the feed protocol
  *   serve       the live service: WebSocket feed, journal, running assessment, dashboard
  *   replay      send recorded tracks to a running service as a producer would
- *   report      write the HTML debrief from an assessment document or a running service
+ *   report      write the debrief package (report.html, results.json, runs.csv, notes.csv)
  *
  * Exit codes: 0 success; 2 bad input or usage; 3 internal failure.
  */
@@ -21,7 +21,9 @@ import { assessFiles, formatReport, writeReport } from './assess.js';
 import { writeDemoFiles } from './demo-files.js';
 import { DemoError, runDemo } from './demo.js';
 import { readFileSync, writeFileSync } from 'node:fs';
-import { renderDebrief } from './debrief.js';
+import { sourceProblem, writeDebrief } from './debrief.js';
+import { DebriefError } from '../debrief/source.js';
+import { resultsJsonSchema } from '../debrief/results-schema.js';
 import { JournalError } from '../service/journal.js';
 import { protocolJsonSchema } from '../service/protocol.js';
 import { replay, ReplayError } from '../service/replay.js';
@@ -49,8 +51,9 @@ commands:
       time); --exit stops when all runs are judged
   demo-files [--dir DIR] [--seed N] [--sims N] [--live-runs N]
       only write the demo event's files (plan.json, baseline.csv, live.csv, truth.json)
-  schema plan|assessment|protocol
-      print the JSON Schema of an event plan, the assessment document or the feed protocol
+  schema plan|assessment|results|protocol
+      print the JSON Schema of an event plan, the assessment document, the debrief's
+      results.json or the feed protocol
   serve [--plan FILE] [--baseline FILE] [--journal FILE] [--host H] [--port N] [--token-file F]
         [--allow-origin URL]... [--durability normal|full]
       the live service (default 127.0.0.1:7340, journal .plumbline/journal.sqlite); binding to
@@ -58,8 +61,10 @@ commands:
   replay --live FILE [--baseline FILE] [--plan FILE] [--url ws://HOST:PORT/feed] [--speed X]
          [--overlap N] [--token-file F]
       send recorded runs to a running service at their recorded pace times --speed
-  report (--in FILE | --url http://HOST:PORT) [--out FILE]
-      write the debrief (self-contained HTML) from an assessment document or a running service
+  report (--journal FILE [--baseline FILE] | --url http://HOST:PORT | --in FILE) [--out DIR]
+      write the debrief package into DIR (default debrief/): report.html (self-contained,
+      prints to PDF), results.json, runs.csv, notes.csv; from a journal (read, not changed),
+      a running service or an assessment document
 
 exit codes: 0 success, 2 bad input or usage, 3 internal failure`;
 
@@ -132,8 +137,9 @@ async function run(argv: string[]): Promise<number> {
       const which = rest[0];
       if (which === 'plan') process.stdout.write(`${JSON.stringify(planJsonSchema(), null, 2)}\n`);
       else if (which === 'assessment') process.stdout.write(`${JSON.stringify(z.toJSONSchema(assessmentReportSchema, { io: 'output' }), null, 2)}\n`);
+      else if (which === 'results') process.stdout.write(`${JSON.stringify(resultsJsonSchema(), null, 2)}\n`);
       else if (which === 'protocol') process.stdout.write(`${JSON.stringify(protocolJsonSchema(), null, 2)}\n`);
-      else throw new UsageError(`schema: expected "plan", "assessment" or "protocol", got ${which ?? 'nothing'}`);
+      else throw new UsageError(`schema: expected "plan", "assessment", "results" or "protocol", got ${which ?? 'nothing'}`);
       return EXIT_OK;
     }
     case 'serve':
@@ -252,27 +258,17 @@ async function demo(args: string[]): Promise<number> {
 }
 
 async function reportCommand(args: string[]): Promise<number> {
-  const { values } = parse(args, { in: { type: 'string' }, url: { type: 'string' }, out: { type: 'string' } });
-  let doc: unknown;
-  if (typeof values.in === 'string') {
-    try {
-      doc = JSON.parse(readFileSync(values.in, 'utf8'));
-    } catch (e) {
-      throw new UsageError(`cannot read ${values.in}: ${e instanceof Error ? e.message : String(e)}`);
-    }
-  } else if (typeof values.url === 'string') {
-    const res = await fetch(`${values.url.replace(/\/$/, '')}/api/export`).catch((e: unknown) => {
-      throw new UsageError(`cannot reach ${values.url}: ${e instanceof Error ? e.message : String(e)}`);
-    });
-    doc = await res.json();
-  } else {
-    throw new UsageError('report: give --in FILE or --url http://HOST:PORT');
-  }
-  const parsed = assessmentReportSchema.safeParse(doc);
-  if (!parsed.success) throw new UsageError(`not an assessment document: ${parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}`);
-  const out = typeof values.out === 'string' ? values.out : 'debrief.html';
-  writeFileSync(out, renderDebrief(parsed.data));
-  process.stderr.write(`wrote ${out}\n`);
+  const { values } = parse(args, { journal: { type: 'string' }, baseline: { type: 'string' }, url: { type: 'string' }, in: { type: 'string' }, out: { type: 'string' } });
+  const str = (x: string | boolean | undefined) => (typeof x === 'string' ? x : undefined);
+  const o = { journal: str(values.journal), url: str(values.url), in: str(values.in), baseline: str(values.baseline) };
+  const problem = sourceProblem(o);
+  if (problem) throw new UsageError(problem);
+  if (o.baseline !== undefined && o.journal === undefined) throw new UsageError('report: --baseline goes with --journal');
+  const progress = terminalProgress();
+  const out = str(values.out) ?? 'debrief';
+  const written = await writeDebrief({ ...o, out, onProgress: (label, d, t) => progress.update(label, d, t) });
+  progress.done();
+  process.stderr.write(`wrote ${written.join(', ')}\n`);
   return EXIT_OK;
 }
 
@@ -325,7 +321,7 @@ export async function main(argv: string[]): Promise<number> {
       process.stderr.write(`plumbline: ${e.message}\n\n${USAGE}\n`);
       return EXIT_INPUT;
     }
-    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError) {
+    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError || e instanceof DebriefError) {
       process.stderr.write(`plumbline: ${e.message}\n`);
       return EXIT_INPUT;
     }

@@ -146,6 +146,47 @@ export class Journal {
     return j;
   }
 
+  /**
+   * A private in-memory copy of a journal file, for reading an event without touching the file:
+   * the file is opened read-only, serialized, and the copy is what the returned journal reads and
+   * writes (a restore may judge runs that were never judged; those writes stay in memory).
+   */
+  static snapshot(path: string): Journal {
+    let copy: Database.Database;
+    try {
+      const file = new Database(path, { readonly: true, fileMustExist: true });
+      try {
+        // Reading the schema fails at once on a file that is not an SQLite database.
+        file.prepare('SELECT count(*) FROM sqlite_master').get();
+        const image = file.serialize();
+        // A WAL-mode file (header bytes 18-19 = 2) cannot be opened from memory; the copy is
+        // marked as a rollback-journal database (sqlite.org/fileformat.html, "File format version numbers").
+        image[18] = 1;
+        image[19] = 1;
+        copy = new Database(image);
+      } finally {
+        file.close();
+      }
+    } catch (e) {
+      const reason = e instanceof Error ? e.message : String(e);
+      if (/not a database/.test(reason)) throw new JournalError('JOURNAL_VERSION', `${path} is not a plumbline journal: ${reason}`);
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot read the journal ${path}: ${reason}`);
+    }
+    let j: Journal;
+    try {
+      j = new Journal(copy);
+    } catch (e) {
+      copy.close();
+      throw new JournalError('JOURNAL_VERSION', `${path} is not a plumbline journal: ${e instanceof Error ? e.message : String(e)}`);
+    }
+    const stored = j.getMeta('schemaVersion');
+    if (stored === undefined || Number(stored) !== JOURNAL_SCHEMA_VERSION) {
+      copy.close();
+      throw new JournalError('JOURNAL_VERSION', `${path} is not a plumbline journal of schema version ${JOURNAL_SCHEMA_VERSION} (found ${stored ?? 'none'})`);
+    }
+    return j;
+  }
+
   get sqliteVersion(): string {
     return (this.db.prepare('SELECT sqlite_version() AS v').get() as { v: string }).v;
   }

@@ -3,7 +3,7 @@
  *
  *   /feed   WebSocket for producers (open, points, close, note)
  *   /watch  WebSocket for dashboards: a snapshot, then conflated deltas; may send notes only
- *   GET /api/state, /api/runs/:vignette/:track, /api/export, /api/plan, /api/schema/protocol, /healthz
+ *   GET /api/state, /api/runs/:vignette/:track, /api/export, /api/debrief.zip, /api/plan, /api/schema/protocol, /healthz
  *   GET /   the dashboard's static files (when built)
  *
  * Pipeline: socket frames → parse (never throws) → EventService.receive (validate, stage) →
@@ -27,6 +27,8 @@ import { WebSocketServer, type WebSocket } from 'ws';
 import { loadPlan, type EventPlan } from '../plan.js';
 import { readTracks } from '../tracks-reader.js';
 import { Assessor } from './assessor.js';
+import { zipInWorker } from '../debrief/offthread.js';
+import { fromService } from '../debrief/source.js';
 import { EventService, type Change, type Role } from './event-service.js';
 import { Journal, JournalError } from './journal.js';
 import { DEFAULT_LIMITS, type ServiceLimits } from './limits.js';
@@ -101,16 +103,25 @@ function sameToken(given: string | undefined, expected: string): boolean {
   return a.length === b.length && timingSafeEqual(a, b);
 }
 
-export async function startServer(options: ServeOptions): Promise<RunningServer> {
-  const limits: ServiceLimits = { ...DEFAULT_LIMITS, ...options.limits };
-  const host = options.host ?? '127.0.0.1';
-  const log = options.log ?? (() => undefined);
-  if (!LOOPBACK.has(host) && !options.token) {
-    throw new ServeError('TOKEN_REQUIRED', `binding to ${host} exposes the feed beyond this machine: give a producer token (PLUMBLINE_TOKEN or --token-file)`);
-  }
+/** An event rebuilt from a journal: the service, its computation, the plan. */
+export interface OpenedEvent {
+  readonly plan: EventPlan;
+  readonly service: EventService;
+  readonly assessor: Assessor;
+}
 
-  const journal = Journal.open(options.journalPath, { durability: options.durability });
-  let service: EventService | undefined;
+/**
+ * Rebuild the event held by a journal, as the service does on start: the plan (from the options,
+ * checked against the journal's, or the journal's own), the baseline file (given, or the one the
+ * journal recorded), then every track, result and log entry (EventService.restore). Used by
+ * `startServer` and by the debrief of a journal file (on a private copy of the journal).
+ */
+export async function openEvent(
+  journal: Journal,
+  options: Pick<ServeOptions, 'plan' | 'planPath' | 'baselinePath' | 'inProcessCompute' | 'refitDelayMs' | 'onProgress' | 'journalPath'> & { limits: ServiceLimits; log?: (line: string) => void },
+): Promise<OpenedEvent> {
+  const log = options.log ?? (() => undefined);
+  const limits = options.limits;
   let assessor: Assessor | undefined;
   try {
     // The plan: from the file, checked against the journal's when it has one.
@@ -128,7 +139,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       { vignettes: plan.vignettes, channels: plan.channels, analysis: plan.analysis, provisionalStep: limits.provisionalStep },
       { inProcess: options.inProcessCompute },
     );
-    service = new EventService({ plan, journal, assessor, limits, refitDelayMs: options.refitDelayMs });
+    const service = new EventService({ plan, journal, assessor, limits, refitDelayMs: options.refitDelayMs });
 
     const baselinePath = options.baselinePath ?? journal.getMeta('baselineFile');
     if (baselinePath) {
@@ -140,13 +151,32 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     }
     const restored = await service.restore(options.onProgress);
     if (restored.tracks > 0) log(`journal: restored ${restored.tracks} tracks and ${restored.points} points from ${options.journalPath}`);
+    return { plan, service, assessor };
   } catch (e) {
     await assessor?.close();
+    throw e;
+  }
+}
+
+export async function startServer(options: ServeOptions): Promise<RunningServer> {
+  const limits: ServiceLimits = { ...DEFAULT_LIMITS, ...options.limits };
+  const host = options.host ?? '127.0.0.1';
+  const log = options.log ?? (() => undefined);
+  if (!LOOPBACK.has(host) && !options.token) {
+    throw new ServeError('TOKEN_REQUIRED', `binding to ${host} exposes the feed beyond this machine: give a producer token (PLUMBLINE_TOKEN or --token-file)`);
+  }
+
+  const journal = Journal.open(options.journalPath, { durability: options.durability });
+  let opened: OpenedEvent;
+  try {
+    opened = await openEvent(journal, { ...options, limits, log });
+  } catch (e) {
     journal.close();
     throw e;
   }
+  const { service } = opened;
   const svc = service;
-  const worker = assessor;
+  const worker = opened.assessor;
   const activePlan = JSON.parse(journal.getMeta('plan') as string) as EventPlan;
 
   // ------------------------------------------------------------- HTTP
@@ -156,6 +186,25 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     res.writeHead(status, { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' });
     res.end(text);
   };
+  // The debrief package of the event so far, zipped; built on a worker thread, one at a time.
+  let debriefQueue: Promise<unknown> = Promise.resolve();
+  const sendDebrief = (res: ServerResponse) => {
+    const input = fromService(svc, { kind: 'service', name: `plumbline service (${activePlan.name})` });
+    const job = debriefQueue.then(() => zipInWorker(input));
+    debriefQueue = job.catch(() => undefined);
+    job.then(
+      (zip) => {
+        res.writeHead(200, {
+          'content-type': 'application/zip',
+          'content-disposition': 'attachment; filename="plumbline-debrief.zip"',
+          'content-length': String(zip.byteLength),
+          'cache-control': 'no-store',
+        });
+        res.end(zip);
+      },
+      (e: unknown) => sendJson(res, 500, { error: 'INTERNAL', reason: e instanceof Error ? e.message : String(e) }),
+    );
+  };
   const handleHttp = (req: IncomingMessage, res: ServerResponse) => {
     try {
       const url = new URL(req.url ?? '/', 'http://localhost');
@@ -164,6 +213,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       if (path === '/api/state') return sendJson(res, 200, svc.snapshot());
       if (path === '/api/export') return sendJson(res, 200, svc.exportReport());
       if (path === '/api/plan') return sendJson(res, 200, activePlan);
+      if (path === '/api/debrief.zip') return sendDebrief(res);
       if (path === '/api/schema/protocol') return sendJson(res, 200, protocolJsonSchema());
       if (path === '/healthz') return sendJson(res, 200, { ok: !worker.broken, worker: worker.broken?.message ?? 'running', queue: worker.queued, sqlite: journal.sqliteVersion });
       const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);

@@ -12,6 +12,7 @@
 import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { unzipSync } from 'fflate';
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { RawTrack } from '../../engine/types.js';
@@ -22,7 +23,7 @@ import { startServer, type RunningServer } from '../../ingest/service/server.js'
 import type { EventView } from '../../ingest/service/view.js';
 import { readTracks } from '../../ingest/tracks-reader.js';
 import { formatP } from '../../dashboard/src/format.js';
-import { ARTIFACTS, DIST, ensureDashboardBuilt, launchChromium, quantile, recordFrames, watchPage, type Frames, type PageWatch } from './support/browser.js';
+import { ARTIFACTS, axeViolations, DIST, ensureDashboardBuilt, launchChromium, quantile, recordFrames, watchPage, type Frames, type PageWatch } from './support/browser.js';
 
 const XSS_VIGNETTE = 'S1-L3';
 const XSS_LABEL = 'sea state low, lane 3 <img src=x onerror="window.__plumblineXss=1"><b>bold?</b>';
@@ -105,6 +106,10 @@ describe('the dashboard against a live event', () => {
     expect(await provisional.locator('.mark').textContent()).toMatch(/[◇○]/);
     mkdirSync(ARTIFACTS, { recursive: true });
     await page.screenshot({ path: join(ARTIFACTS, 'dashboard-in-flight.png') });
+    // WCAG 2.1 A/AA (axe-core) with runs in flight: provisional values, busy and ready states shown.
+    const inFlight = await axeViolations(page);
+    figures.axeInFlight = inFlight.map((v) => ({ id: v.id, nodes: v.nodes.length }));
+    expect(inFlight, JSON.stringify(inFlight, null, 1)).toEqual([]);
     // Frame times over 4 s with four runs in flight.
     await page.evaluate(() => {
       const w = window as unknown as { __frames: Frames };
@@ -208,6 +213,26 @@ describe('the dashboard against a live event', () => {
     await page.screenshot({ path: join(ARTIFACTS, 'dashboard-page.png'), fullPage: true });
     await page.locator('section[aria-label="event overview"]').screenshot({ path: join(ARTIFACTS, 'dashboard-overview.png') });
     await page.locator('pl-app .work').screenshot({ path: join(ARTIFACTS, 'dashboard-run-detail.png') });
+    // WCAG 2.1 A/AA (axe-core) at the end: final values, verdicts, a selected run, notes.
+    const done2 = await axeViolations(page);
+    figures.axeComplete = done2.map((v) => ({ id: v.id, nodes: v.nodes.length }));
+    expect(done2, JSON.stringify(done2, null, 1)).toEqual([]);
+    // And as printed from the browser.
+    await page.emulateMedia({ media: 'print' });
+    const printed = await axeViolations(page);
+    await page.emulateMedia({ media: 'screen' });
+    expect(printed, JSON.stringify(printed, null, 1)).toEqual([]);
+  });
+
+  it('offers the debrief package of the event as one .zip download from the header', async () => {
+    const link = page.locator('pl-debrief-link a');
+    expect(await link.getAttribute('href')).toBe('/api/debrief.zip');
+    expect(await link.textContent()).toContain('Debrief package');
+    const [download] = await Promise.all([page.waitForEvent('download'), link.click()]);
+    const file = join(dir, 'downloaded.zip');
+    await download.saveAs(file);
+    const entries = Object.keys(unzipSync(readFileSync(file)));
+    expect(entries.sort()).toEqual(['debrief/notes.csv', 'debrief/report.html', 'debrief/results.json', 'debrief/runs.csv']);
   });
 
   it('logged no console error and asked nothing of any origin but its own server', () => {

@@ -82,16 +82,16 @@ describe('plumbline assess', () => {
 });
 
 describe('plumbline report', () => {
-  it('writes a self-contained debrief from an assessment document, escaping text from outside', async () => {
+  it('writes the debrief package from an assessment document, escaping text from outside', async () => {
     const out = join(dir, 'result-for-debrief.json');
     expect(cli('assess', '--plan', files.plan, '--baseline', files.baseline, '--live', files.live, '--out', out, '--quiet').status).toBe(0);
     const doc = JSON.parse(readFileSync(out, 'utf8'));
     doc.runs[0].track = '<script>alert(1)</script>';
     writeFileSync(out, JSON.stringify(doc));
-    const html = join(dir, 'debrief.html');
-    const r = cli('report', '--in', out, '--out', html);
+    const folder = join(dir, 'debrief');
+    const r = cli('report', '--in', out, '--out', folder);
     expect(r.status).toBe(0);
-    const page = readFileSync(html, 'utf8');
+    const page = readFileSync(join(folder, 'report.html'), 'utf8');
     expect(page).toContain('&lt;script&gt;alert(1)&lt;/script&gt;');
     expect(page).not.toContain('<script>');
     expect(page).toContain('Statistical agreement is evidence, not accreditation.');

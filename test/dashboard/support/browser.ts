@@ -166,3 +166,29 @@ export function quantile(xs: readonly number[], q: number): number {
   const s = [...xs].sort((a, b) => a - b);
   return s.length ? s[Math.min(s.length - 1, Math.floor(q * s.length))] : Number.NaN;
 }
+
+/** One failing axe-core rule: its id and the elements (selector and axe's summary) that fail it. */
+export interface AxeViolation {
+  readonly id: string;
+  readonly impact: string | null;
+  readonly nodes: ReadonlyArray<{ target: string; summary: string }>;
+}
+
+/** The WCAG 2.1 level A and AA rule tags of axe-core (axe-core's documented tag names). */
+export const WCAG21_AA_TAGS = ['wcag2a', 'wcag2aa', 'wcag21a', 'wcag21aa'] as const;
+
+/**
+ * Run axe-core (npm axe-core, pinned in package.json) on the page with only the WCAG 2.1 A/AA
+ * rules, open shadow roots included. The script is evaluated through the DevTools protocol rather
+ * than added as a <script> element: the dashboard's Content-Security-Policy (script-src 'self')
+ * rightly refuses inline scripts, and the check must not weaken it.
+ */
+export async function axeViolations(page: Page): Promise<AxeViolation[]> {
+  const source = readFileSync(join(ROOT, 'node_modules', 'axe-core', 'axe.min.js'), 'utf8');
+  await page.evaluate(source);
+  return page.evaluate(async (tags) => {
+    const axe = (window as unknown as { axe: { run: (ctx: Document, o: unknown) => Promise<{ violations: Array<{ id: string; impact: string | null; nodes: Array<{ target: unknown[]; failureSummary?: string }> }> }> } }).axe;
+    const r = await axe.run(document, { runOnly: { type: 'tag', values: tags }, resultTypes: ['violations'] });
+    return r.violations.map((v) => ({ id: v.id, impact: v.impact, nodes: v.nodes.map((n) => ({ target: JSON.stringify(n.target), summary: n.failureSummary ?? '' })) }));
+  }, [...WCAG21_AA_TAGS]);
+}
