@@ -113,12 +113,12 @@ export class PlEvidenceTimeline extends LitElement {
     return {
       // The legend sits in its own band under the axis title (scrolling when it is long), so it
       // never covers the plot; the right margin holds the right axis's labels and its title.
-      grid: { outerBoundsMode: 'none', left: 74, right: this.hasEvidence() ? 78 : 16, top: 12, bottom: 70 },
+      grid: { outerBoundsMode: 'none', left: 88, right: this.hasEvidence() ? 80 : 16, top: 12, bottom: 76 },
       aria: { enabled: true },
-      legend: { type: 'scroll', bottom: 0, left: 8, right: 8, textStyle: { fontSize: 11, color: COLORS.muted }, itemWidth: 16, itemHeight: 8 },
+      legend: { type: 'scroll', bottom: 6, left: 8, right: 8, textStyle: { fontSize: 11, color: COLORS.muted }, itemWidth: 16, itemHeight: 8 },
       xAxis: { type: 'value', name: 'runs completed (count)', nameLocation: 'middle', nameGap: 22, min: 0, minInterval: 1, ...axisStyle },
       yAxis: [
-        { type: 'log', name: 'combined p-value (log)', nameLocation: 'middle', nameGap: 50, max: 1, ...axisStyle },
+        { type: 'log', name: 'combined p-value (log)', nameLocation: 'middle', nameGap: 60, max: 1, ...axisStyle },
         { type: 'log', name: 'evidence (e-value, log)', nameLocation: 'middle', nameGap: 44, show: this.hasEvidence(), ...axisStyle, splitLine: { show: false } },
       ],
       tooltip: { trigger: 'item', renderMode: 'richText', confine: true, formatter: (p: unknown) => this.tooltip(p) },

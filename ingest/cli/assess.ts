@@ -74,7 +74,7 @@ export function formatReport(plan: EventPlan, report: AssessmentReport): string 
     formatP(v.adjustedPValue),
     v.verdict,
   ]);
-  out.push(table(['vignette', 'baseline', 'sims', 'components', 'variance', `p(${report.plan.combination})`, 'p(Holm)', 'verdict'], models));
+  out.push(table(['vignette', 'baseline', 'sims', 'components', 'variance', 'p(combined)', 'p(Holm)', 'verdict'], models));
   out.push('');
   const inputs = [report.inputs.baseline, report.inputs.live].filter((x) => x !== undefined);
   for (const i of inputs) {

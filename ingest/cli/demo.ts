@@ -47,7 +47,7 @@ function flyingOrder(live: readonly RawTrack[]): RawTrack[] {
 
 export function verdictTable(report: AssessmentReport): string {
   return table(
-    ['vignette', 'runs', `p(${report.plan.combination})`, 'p(Holm)', 'verdict'],
+    ['vignette', 'runs', 'p(combined)', 'p(Holm)', 'verdict'],
     report.vignettes.map((v) => [v.id, String(v.runs), formatP(v.combined?.pValue), formatP(v.adjustedPValue), v.verdict]),
   );
 }

@@ -147,7 +147,7 @@ ${figure(chart, 'Evidence after each completed run; the threshold dashed.')}</di
 
 function vignetteTable(report: AssessmentReport, results: DebriefResults): string {
   return table(
-    ['vignette', 'condition', 'live runs', `p (${report.plan.combination})`, 'p (Holm)', 'verdict', 'advice'],
+    ['vignette', 'condition', 'live runs', 'p (calibrated)', 'p (Holm)', 'verdict', 'advice'],
     report.vignettes.map((v) => [
       e(v.id),
       e(v.label ?? ''),
