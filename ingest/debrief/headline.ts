@@ -40,7 +40,7 @@ export function eventHeadline(report: AssessmentReport): EventHeadline {
     overall: c ? { method: c.method, statistic: c.statistic, pValue: c.pValue, count: c.count } : undefined,
     perStatistic,
     basis: c
-      ? `each statistic combined by ${METHOD_NAMES[method]} over the ${judged.length} completed run${judged.length === 1 ? '' : 's'}; the verdict is the smallest of the three, calibrated by ${c.draws} seeded Monte Carlo draws of the simulated runs as pseudo-live runs${c.bound ? ' (below the Monte Carlo floor: the Bonferroni bound)' : ''}; valid for a number of runs fixed in advance`
+      ? `${METHOD_NAMES[method]} per statistic over ${judged.length} completed run${judged.length === 1 ? '' : 's'}; the smallest of the three calibrated by ${c.draws} seeded Monte Carlo draws${c.bound ? ' (below their floor: Bonferroni)' : ''}; valid for a run count fixed in advance`
       : 'no completed run yet',
   };
 }

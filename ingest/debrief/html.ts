@@ -117,7 +117,7 @@ function cautions(list: readonly string[], heading: string): string {
 function headlineBlock(h: EventHeadline): string {
   const o = h.overall;
   const verdict = o
-    ? `<p class="headline"><strong>Event verdict:</strong> ${verdictCell(h.verdict)} — combined p = ${formatP(o.pValue)} over ${o.count} run${o.count === 1 ? '' : 's'} (the smallest of the three per-statistic values below, calibrated over the three statistics, α = ${h.alpha}).</p>`
+    ? `<p class="headline"><strong>Event verdict:</strong> ${verdictCell(h.verdict)} — combined p = ${formatP(o.pValue)} over ${o.count} run${o.count === 1 ? '' : 's'} (the smallest per-statistic value below, calibrated; α = ${h.alpha}).</p>`
     : '<p class="headline"><strong>Event verdict:</strong> not judged: no run has been judged yet.</p>';
   const rows = STATISTIC_NAMES.map((s) => {
     const c = h.perStatistic[s];

@@ -133,7 +133,7 @@ describe('plumbline report --journal', () => {
       expect(s.match(/<svg /g)?.length).toBe(exported.plan.channels.length + 3 + 1);
     });
     const summary = html.slice(0, html.indexOf('<section class="run"'));
-    expect(summary).toContain(`combined p = ${formatP(exported.combined?.pValue)} over 18 runs (the smallest of the three per-statistic values below, calibrated over the three statistics`);
+    expect(summary).toContain(`combined p = ${formatP(exported.combined?.pValue)} over 18 runs (the smallest per-statistic value below, calibrated; α = 0.05)`);
     // The three per-statistic values are the document's own (engine/combine-statistics.ts).
     for (const s of ['l2', 'score', 'residual'] as const) expect(summary).toContain(`<strong>${formatP(exported.combined?.byStatistic[s].pValue)}</strong>`);
     expect(summary).toContain(`Anytime-valid evidence:</strong> ${results.evidence?.current.toFixed(2)} against the threshold 20`);
