@@ -16,4 +16,13 @@ describe('README', () => {
     const quick = /## Quickstart[\s\S]*?```sh\n([\s\S]*?)```/.exec(readme)?.[1] ?? '';
     expect(quick.trim().split('\n').map((l) => l.replace(/#.*$/, '').trim())).toEqual(['npm ci && npm start', 'npm test']);
   });
+
+  it('CI runs the quickstart\'s install and test commands and nothing else', () => {
+    const script = readFileSync('.ci/run', 'utf8');
+    const commands = script
+      .split('\n')
+      .map((l) => l.trim())
+      .filter((l) => l && !l.startsWith('#') && !/^(set |cd |echo |export )/.test(l));
+    expect(commands.map((c) => c.split(/\s+/).slice(0, 2).join(' '))).toEqual(['npm ci', 'npm test']);
+  });
 });
