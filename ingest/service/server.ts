@@ -156,9 +156,17 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     res.writeHead(status, { 'content-type': 'application/json; charset=utf-8', 'cache-control': 'no-store' });
     res.end(text);
   };
+  const decode = (s: string): string | undefined => {
+    try {
+      return decodeURIComponent(s);
+    } catch {
+      return undefined;
+    }
+  };
   const handleHttp = (req: IncomingMessage, res: ServerResponse) => {
     try {
       const url = new URL(req.url ?? '/', 'http://localhost');
+      if (decode(url.pathname) === undefined) return sendJson(res, 400, { error: 'BAD_REQUEST', reason: `the path ${url.pathname.slice(0, 200)} is not valid percent-encoding` });
       if (req.method !== 'GET' && req.method !== 'HEAD') return sendJson(res, 405, { error: 'METHOD_NOT_ALLOWED', reason: 'read-only endpoints: use GET' });
       const path = url.pathname;
       if (path === '/api/state') return sendJson(res, 200, svc.snapshot());
@@ -200,6 +208,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   const wss = new WebSocketServer({ noServer: true, maxPayload: limits.maxPayload, perMessageDeflate: false });
   const watchers = new Set<Watcher>();
   const alive = new WeakMap<WebSocket, boolean>();
+  const roles = new WeakMap<WebSocket, Role>();
   const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void }>();
   const sub = inbound$
     .pipe(batchPerTurn())
@@ -244,6 +253,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
 
   const onConnection = (ws: WebSocket, role: Role) => {
     alive.set(ws, true);
+    roles.set(ws, role);
     ws.on('pong', () => alive.set(ws, true));
     ws.on('error', (e) => log(`socket error (${role}): ${e.message}`));
     let tokens = limits.messageBurst;
@@ -324,6 +334,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       for (const w of watchers) {
         w.queue.set(m[0], m[1]);
         if (w.queue.size > MAX_QUEUE) {
+          log(`dropping a dashboard with ${MAX_QUEUE} updates waiting`);
           w.ws.terminate();
           watchers.delete(w);
           continue;
@@ -337,6 +348,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   const heartbeat = setInterval(() => {
     for (const ws of wss.clients) {
       if (alive.get(ws) === false) {
+        log(`dropping a ${roles.get(ws) === 'watcher' ? 'dashboard' : 'producer'} connection that stopped reading (no answer to a ping within ${limits.heartbeatMs} ms)`);
         ws.terminate();
         continue;
       }
