@@ -106,6 +106,7 @@ export const ERROR_CODES = {
   BEYOND_HORIZON: 'the point is later than the vignette horizon',
   INCOMPLETE: 'close before all points up to lastSeq arrived',
   RATE_LIMITED: 'too many messages; slow down',
+  JOURNAL_UNAVAILABLE: 'the journal cannot be written (disk full, read-only, I/O error); nothing of this message was committed: resend it once the journal recovers',
   INTERNAL: 'the server failed to process the message',
 } as const;
 export type ErrorCode = keyof typeof ERROR_CODES;

@@ -173,7 +173,10 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       if (path === '/api/export') return sendJson(res, 200, svc.exportReport());
       if (path === '/api/plan') return sendJson(res, 200, activePlan);
       if (path === '/api/schema/protocol') return sendJson(res, 200, protocolJsonSchema());
-      if (path === '/healthz') return sendJson(res, 200, { ok: !worker.broken, worker: worker.broken?.message ?? 'running', queue: worker.queued, sqlite: journal.sqliteVersion });
+      if (path === '/healthz') {
+        const j = svc.journalStatus();
+        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion });
+      }
       const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);
       if (run) {
         const d = svc.detail(decodeURIComponent(run[1]), decodeURIComponent(run[2]));
@@ -322,9 +325,11 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
         }
       case 'log':
         return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
+      case 'journal':
+        return ['journal', { type: 'journal', journal: svc.journalStatus() }];
     }
   };
-  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : 'combined');
+  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : c.kind === 'journal' ? 'journal' : 'combined');
   const MAX_QUEUE = 5000;
   const changesSub = svc.changes$
     .pipe(conflatePerKey(changeKey, 1000 / limits.dashboardUpdatesPerSecond, { idleMs: 60_000, isLast: (c) => c.kind === 'log' }))
