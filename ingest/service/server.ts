@@ -22,6 +22,7 @@ import { createServer, type IncomingMessage, type Server, type ServerResponse } 
 import type { Duplex } from 'node:stream';
 import { extname, join, normalize, resolve } from 'node:path';
 import { timingSafeEqual } from 'node:crypto';
+import { monitorEventLoopDelay } from 'node:perf_hooks';
 import { Subject } from 'rxjs';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { loadPlan, type EventPlan } from '../plan.js';
@@ -175,7 +176,11 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       if (path === '/api/schema/protocol') return sendJson(res, 200, protocolJsonSchema());
       if (path === '/healthz') {
         const j = svc.journalStatus();
-        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion });
+        const mem = process.memoryUsage();
+        const ms = (ns: number) => Math.round(ns / 1e4) / 100;
+        const eventLoop = { p50Ms: ms(loopDelay.percentile(50)), p99Ms: ms(loopDelay.percentile(99)), maxMs: ms(loopDelay.max) };
+        if (url.searchParams.has('reset')) loopDelay.reset();
+        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion, eventLoop, memory: { rssBytes: mem.rss, heapUsedBytes: mem.heapUsed } });
       }
       const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);
       if (run) {
@@ -206,6 +211,9 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     }
   };
   const server: Server = createServer(handleHttp);
+  // Event-loop delay of this process (perf_hooks histogram, ns), reported by /healthz.
+  const loopDelay = monitorEventLoopDelay({ resolution: 10 });
+  loopDelay.enable();
 
   // ------------------------------------------------------------- WebSocket
   const wss = new WebSocketServer({ noServer: true, maxPayload: limits.maxPayload, perMessageDeflate: false });
@@ -395,6 +403,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     journal,
     close() {
       closing ??= (async () => {
+        loopDelay.disable();
         clearInterval(heartbeat);
         clearInterval(drainTimer);
         for (const ws of wss.clients) ws.terminate();
