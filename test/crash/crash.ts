@@ -17,7 +17,7 @@ const { values } = parseArgs({
     seed: { type: 'string', default: '1' },
     sims: { type: 'string', default: '40' },
     runs: { type: 'string', default: '2' },
-    speed: { type: 'string', default: '6' },
+    speed: { type: 'string', default: '2' },
   },
 });
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-crash-'));
