@@ -21,6 +21,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { writeDemoFiles } from '../../../ingest/cli/demo-files.js';
 import { JournalError } from '../../../ingest/service/journal.js';
 import { startServer, type RunningServer } from '../../../ingest/service/server.js';
+import { DIST, ensureDashboardBuilt, launchChromium } from '../../dashboard/support/browser.js';
 
 type Reply = Record<string, unknown>;
 
@@ -110,7 +111,13 @@ describe('the journal cannot be written', () => {
     const real = kind === 'disk full' && mounted;
     const folder = real ? mnt : join(dir, kind.replace(/ /g, '-'));
     const journalPath = join(folder, 'journal.sqlite');
-    const server = await startServer({ planPath, journalPath, port: 0, inProcessCompute: true });
+    if (kind === 'disk full') ensureDashboardBuilt();
+    const server = await startServer({ planPath, journalPath, port: 0, inProcessCompute: true, staticDir: DIST });
+    // The dashboard in a browser, for the banner (disk-full case only: one browser start is enough).
+    const browser = kind === 'disk full' ? await launchChromium() : undefined;
+    const page = await browser?.newPage();
+    await page?.goto(`${server.url}/`);
+    const banner = page?.locator('#journal-fault');
     let release: (() => void) | undefined;
     try {
       const feed = `${server.url.replace('http', 'ws')}/feed`;
@@ -149,6 +156,10 @@ describe('the journal cannot be written', () => {
       // Told everywhere: the dashboard, /healthz; the service still answers.
       const shown = await w.next((r) => r.type === 'journal');
       expect(shown.journal).toMatchObject({ writable: false });
+      if (banner) {
+        await banner.waitFor({ state: 'visible', timeout: 15_000 });
+        expect(await banner.textContent()).toMatch(/Not recording:.*disk is full/s);
+      }
       const health = (await (await fetch(`${server.url}/healthz`)).json()) as { ok: boolean; journal: { writable: boolean } };
       expect(health).toMatchObject({ ok: false, journal: { writable: false } });
       expect(((await (await fetch(`${server.url}/api/state`)).json()) as { journal: { writable: boolean } }).journal.writable).toBe(false);
@@ -166,12 +177,14 @@ describe('the journal cannot be written', () => {
       expect(r.type).toBe('ack');
       expect(r.committedSeq).toBe(ackedBefore + 200);
       await w.next((x) => x.type === 'journal' && (x.journal as { writable: boolean }).writable === true);
+      await banner?.waitFor({ state: 'detached', timeout: 15_000 });
       p.ws.send(JSON.stringify({ v: 1, type: 'close', id: 'c', vignette: V, track: 'run-1', lastSeq: acked }));
       expect((await p.next((x) => x.id === 'c')).type).toBe('closed');
       p.ws.close();
       w.ws.close();
     } finally {
       release?.();
+      await browser?.close();
       await server.close();
     }
     // Every acknowledged point is in the journal once, with its data.
