@@ -4,7 +4,7 @@
  * maps a valid document to the engine's shapes (`ChannelSpec`, `AnalysisSettings`, `ComponentRule`).
  * JSON by default, YAML when the file name ends in .yaml or .yml.
  */
-import { readFile } from 'node:fs/promises';
+import { readFile, stat } from 'node:fs/promises';
 import { parse as parseYaml, YAMLParseError } from 'yaml';
 import { z } from 'zod';
 import {
@@ -217,7 +217,8 @@ function parseDocument(text: string, fileName: string): unknown {
         const line = e.linePos?.[0]?.line;
         throw new InputError('PLAN_SYNTAX', { file: fileName, line, reason: `invalid YAML: ${e.message.split('\n')[0].replace(/:$/, '')}` });
       }
-      throw e;
+      // Resource limits of the YAML parser (alias expansion, nesting) are syntax errors too.
+      throw new InputError('PLAN_SYNTAX', { file: fileName, reason: `YAML refused: ${e instanceof Error ? e.message.split('\n')[0] : String(e)}` });
     }
   }
   try {
@@ -228,7 +229,7 @@ function parseDocument(text: string, fileName: string): unknown {
       const line = pos ? lineOf(text, Number(pos[1])) : undefined;
       throw new InputError('PLAN_SYNTAX', { file: fileName, line, reason: `invalid JSON: ${e.message}` });
     }
-    throw e;
+    throw new InputError('PLAN_SYNTAX', { file: fileName, reason: `JSON refused: ${e instanceof Error ? e.message : String(e)}` });
   }
 }
 
@@ -246,12 +247,20 @@ export function parsePlan(text: string, fileName: string): EventPlan {
   return toEventPlan(result.data);
 }
 
+/** Largest plan file read, bytes (a plan of hundreds of vignettes is tens of kilobytes). */
+export const MAX_PLAN_BYTES = 4 * 1024 * 1024;
+
 /** Read and parse a plan file; an unreadable file is InputError 'PLAN_UNREADABLE'. */
 export async function loadPlan(path: string): Promise<EventPlan> {
   let text: string;
   try {
+    const size = (await stat(path)).size;
+    if (size > MAX_PLAN_BYTES) {
+      throw new InputError('PLAN_UNREADABLE', { file: path, reason: `the plan is ${size} bytes; a plan is at most ${MAX_PLAN_BYTES} bytes (is this the right file?)` });
+    }
     text = await readFile(path, 'utf8');
   } catch (e) {
+    if (e instanceof InputError) throw e;
     const reason = e instanceof Error ? e.message : String(e);
     throw new InputError('PLAN_UNREADABLE', { file: path, reason: `cannot read plan: ${reason}` });
   }

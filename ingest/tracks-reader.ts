@@ -1,6 +1,7 @@
 /**
  * Streaming readers for live track files, long CSV (`vignette,track,t,<channels...>`) or NDJSON (one
- * object per line with the same keys). Lines are read one at a time (fs stream + readline) and each
+ * object per line with the same keys). Lines are read one at a time (fs stream, split by
+ * `boundedLines`, which refuses a line over MAX_LINE_CHARS) and each
  * track's samples accumulate in growable Float64Arrays, so memory is about 8 bytes per number, never
  * an object per row. After the file ends each track is sorted by time, exact duplicate times are
  * dropped (the first row read wins) and circular channels are unwrapped (engine/unwrap.ts).
@@ -11,7 +12,6 @@
  */
 import { createReadStream } from 'node:fs';
 import { stat } from 'node:fs/promises';
-import { createInterface } from 'node:readline';
 import type { RawTrack } from '../engine/types.js';
 import { unwrapCircular } from '../engine/unwrap.js';
 import { InputError, type InputErrorCode } from './errors.js';
@@ -26,6 +26,13 @@ export const MAX_TRACK_ID_LENGTH = MAX_ID_LENGTH;
  * track, it keeps unwrapping exact to about 1e-7 of a period and free of overflow.
  */
 export const MAX_CIRCULAR_TURNS = 1e6;
+/**
+ * Longest accepted line, characters. A real row is well under a kilobyte; the limit keeps a file
+ * with one endless line (or a header of a million columns) from growing the reader's memory.
+ */
+export const MAX_LINE_CHARS = 1 << 20;
+/** Most unknown or duplicate header columns named in an error message. */
+const MAX_LISTED_COLUMNS = 8;
 /** Longest excerpt of an offending value quoted in an error message. */
 const MAX_QUOTED_CHARS = 40;
 /** Initial capacity (samples) of a track buffer; it doubles when full. */
@@ -109,6 +116,43 @@ class TrackBuffer {
     this.t = grown(this.t);
     this.values = this.values.map(grown);
   }
+}
+
+/** Name at most MAX_LISTED_COLUMNS items, then say how many more there are. */
+function listed(items: readonly string[]): string {
+  const head = items.slice(0, MAX_LISTED_COLUMNS).map(quoted).join(', ');
+  return items.length > MAX_LISTED_COLUMNS ? `${head} and ${items.length - MAX_LISTED_COLUMNS} more` : head;
+}
+
+/**
+ * Split a text stream into lines (LF or CRLF; the line breaks are dropped), refusing any line
+ * longer than `maxChars` with InputError 'TRACKS_ROW' (or 'TRACKS_HEADER' for a CSV header) as
+ * soon as it passes the limit, without holding the rest of it.
+ */
+export async function* boundedLines(chunks: AsyncIterable<string>, file: string, maxChars = MAX_LINE_CHARS, firstIsHeader = true): AsyncGenerator<string> {
+  let partial = '';
+  let lineNo = 1;
+  const tooLong = () =>
+    new InputError(lineNo === 1 && firstIsHeader ? 'TRACKS_HEADER' : 'TRACKS_ROW', { file, line: lineNo, reason: `line longer than ${maxChars} characters (a row is one sample: vignette, track, t and one value per channel)` });
+  for await (const chunk of chunks) {
+    let start = 0;
+    for (;;) {
+      const nl = chunk.indexOf('\n', start);
+      if (nl < 0) {
+        if (partial.length + chunk.length - start > maxChars) throw tooLong();
+        partial += chunk.slice(start);
+        break;
+      }
+      let line = partial + chunk.slice(start, nl);
+      partial = '';
+      if (line.length > maxChars) throw tooLong();
+      if (line.endsWith('\r')) line = line.slice(0, -1);
+      yield line;
+      lineNo++;
+      start = nl + 1;
+    }
+  }
+  if (partial !== '') yield partial.endsWith('\r') ? partial.slice(0, -1) : partial;
 }
 
 function quoted(s: string): string {
@@ -211,11 +255,11 @@ function csvParser(ctx: RowContext, header: string, lineNo: number): RowParser {
   const required = ['vignette', 'track', 't', ...channelNames];
   const problems: string[] = [];
   const dup = names.filter((n, i) => names.indexOf(n) !== i);
-  if (dup.length > 0) problems.push(`duplicate column(s) ${[...new Set(dup)].map(quoted).join(', ')}`);
+  if (dup.length > 0) problems.push(`duplicate column(s) ${listed([...new Set(dup)])}`);
   const missing = required.filter((n) => !names.includes(n));
   if (missing.length > 0) problems.push(`missing column(s) ${missing.map(quoted).join(', ')}`);
   const unknown = names.filter((n) => !required.includes(n));
-  if (unknown.length > 0) problems.push(`unknown column(s) ${[...new Set(unknown)].map(quoted).join(', ')}`);
+  if (unknown.length > 0) problems.push(`unknown column(s) ${listed([...new Set(unknown)])}`);
   if (problems.length > 0) throw fail(`${problems.join('; ')} (expected ${required.join(',')}, in any order)`);
 
   const iv = names.indexOf('vignette');
@@ -412,13 +456,11 @@ export async function readTracks(path: string, plan: EventPlan, options: ReadFil
   const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: 1 << 16 });
   const { onProgress } = options;
   if (onProgress !== undefined) stream.on('data', () => onProgress(stream.bytesRead, totalBytes));
-  const rl = createInterface({ input: stream, crlfDelay: Infinity });
   try {
-    return await readTracksFromLines(rl, path, plan, { skipBadRows: options.skipBadRows, format });
+    return await readTracksFromLines(boundedLines(stream as AsyncIterable<string>, path, MAX_LINE_CHARS, format === 'csv'), path, plan, { skipBadRows: options.skipBadRows, format });
   } catch (e) {
     throw e instanceof InputError ? e : unreadable(e);
   } finally {
-    rl.close();
     stream.destroy();
   }
 }

@@ -93,6 +93,12 @@ export class PlApp extends LitElement {
         color: var(--pl-muted);
         font-size: 11px;
       }
+      .journal-fault {
+        padding: 6px 16px;
+        font-size: 13px;
+        color: #fff;
+        background: #a11d2b;
+      }
       .cautions {
         display: flex;
         gap: 6px;
@@ -217,6 +223,12 @@ export class PlApp extends LitElement {
         ${ev ? html`<pl-debrief-link .event=${ev}></pl-debrief-link>` : nothing}
         ${this.renderCombined(ev)}
       </header>
+      ${ev?.journal && !ev.journal.writable
+        ? html`<div class="journal-fault" role="alert" id="journal-fault">
+            <strong>Not recording:</strong> the journal cannot be written (${ev.journal.reason ?? 'unknown failure'}). Producers' data is
+            refused, not acknowledged, until it recovers; nothing acknowledged before is lost.
+          </div>`
+        : nothing}
       ${ev?.cautions.length
         ? html`<div class="cautions" role="note" aria-label="cautions">
             <span aria-hidden="true">⚠</span>

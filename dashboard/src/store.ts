@@ -102,6 +102,7 @@ export class EventStore extends EventTarget {
   private timeline: EventView['timeline'] = [];
   private log: LogEntryView[] = [];
   private cautions: readonly string[] = [];
+  private journal: EventView['journal'] = { writable: true };
   private readonly dirty = { vignettes: false, runs: false, log: false, event: false };
 
   private connection: ConnectionState = { status: 'connecting', attempt: 0 };
@@ -305,6 +306,11 @@ export class EventStore extends EventTarget {
         this.dirty.event = true;
         break;
       }
+      case 'journal': {
+        this.journal = (msg as Extract<WatchMessage, { type: 'journal' }>).journal;
+        this.dirty.event = true;
+        break;
+      }
       case 'log': {
         const entry = (msg as Extract<WatchMessage, { type: 'log' }>).entry;
         if (!this.log.some((e) => e.id === entry.id)) {
@@ -350,6 +356,7 @@ export class EventStore extends EventTarget {
     this.timeline = state.timeline ?? [];
     this.log = state.log.slice(-this.logEntries);
     this.cautions = state.cautions;
+    this.journal = state.journal ?? { writable: true };
     this.dirty.vignettes = this.dirty.runs = this.dirty.log = this.dirty.event = true;
     this.autoSelect();
     if (this.selected !== undefined) this.wantDetail();
@@ -450,6 +457,7 @@ export class EventStore extends EventTarget {
         timeline: this.timeline,
         log: this.dirty.log || !event ? this.log : event.log,
         cautions: this.cautions,
+        journal: this.journal,
       };
       this.dirty.event = this.dirty.runs = this.dirty.vignettes = this.dirty.log = false;
     }

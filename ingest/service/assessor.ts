@@ -84,7 +84,10 @@ export class Assessor {
       if (r?.kind !== 'fit') throw new Error('fit: unexpected reply');
       return r.result;
     });
-    this.pendingFits.set(vignette, p);
+    // A fit still waiting in the queue is shared by later requests; one the worker has already
+    // started (enqueue starts it at once when the worker is idle) is not, or a refit after more
+    // simulated runs arrive would get this older result.
+    if (this.ordered.some((j) => j.request.kind === 'fit' && j.request.vignette === vignette)) this.pendingFits.set(vignette, p);
     return p;
   }
 

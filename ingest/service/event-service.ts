@@ -22,10 +22,10 @@ import { assembleReport, CAUTIONS, diagnosisRow, practicalRows, runReport, vigne
 import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
 import type { AssessResult, EvidenceResult } from './compute.js';
-import type { Journal, JournalLogEntry, JournalPoint } from './journal.js';
+import { journalWriteFailure, type Journal, type JournalLogEntry, type JournalPoint } from './journal.js';
 import type { ServiceLimits } from './limits.js';
 import { errorReply, type ClientMessage, type CloseMessage, type ErrorCode, type NoteMessage, type OpenMessage, type PointsMessage, type ServerReply } from './protocol.js';
-import { envelopeView, type CombinedView, type EventView, type Judgement, type LogEntryView, type RunDetail, type RunView, type TimelinePoint, type VignetteView } from './view.js';
+import { envelopeView, type CombinedView, type EventView, type JournalStatusView, type Judgement, type LogEntryView, type RunDetail, type RunView, type TimelinePoint, type VignetteView } from './view.js';
 
 export type Role = 'producer' | 'watcher';
 
@@ -33,7 +33,8 @@ export type Change =
   | { readonly kind: 'run'; readonly key: string }
   | { readonly kind: 'vignette'; readonly id: string }
   | { readonly kind: 'combined' }
-  | { readonly kind: 'log'; readonly entry: LogEntryView };
+  | { readonly kind: 'log'; readonly entry: LogEntryView }
+  | { readonly kind: 'journal' };
 
 interface StagedPoint {
   readonly seq: number;
@@ -155,6 +156,8 @@ export class EventService {
   private readonly inflight = new Set<Promise<unknown>>();
   private baselineRead?: ReadReport;
   private closed = false;
+  /** Set while the journal refuses writes (disk full, read-only); cleared by the next successful commit. */
+  private journalFault?: { reason: string; since: number };
 
   constructor(options: EventServiceOptions) {
     this.plan = options.plan;
@@ -266,6 +269,16 @@ export class EventService {
    * through `reply`; acknowledgements of points wait for `flush`.
    */
   receive(role: Role, msg: ClientMessage, reply: (r: ServerReply) => void): void {
+    try {
+      this.receiveOne(role, msg, reply);
+    } catch (e) {
+      const failure = this.journalFailed(e);
+      if (!failure) throw e;
+      reply(errorReply('JOURNAL_UNAVAILABLE', `${failure}; nothing of this message was committed: send it again once the journal recovers`, msg.id));
+    }
+  }
+
+  private receiveOne(role: Role, msg: ClientMessage, reply: (r: ServerReply) => void): void {
     if (this.closed) return reply(errorReply('INTERNAL', 'the service is shutting down', msg.id));
     if (msg.type === 'ping') return reply({ v: 1, type: 'pong', id: msg.id });
     if (role === 'watcher' && msg.type !== 'note') {
@@ -394,16 +407,25 @@ export class EventService {
       try {
         this.journal.commitPoints(all);
       } catch (e) {
+        const failure = this.journalFailed(e);
         for (const b of batch) {
           for (const p of b.staged) {
             b.track.pending.delete(p.seq);
             b.track.pendingTimes.delete(p.t);
           }
-          b.track.maxT = Math.max(0, ...[...b.track.points.values()].map((p) => p.t));
-          b.reply(errorReply('INTERNAL', `the journal could not commit: ${e instanceof Error ? e.message : String(e)}`, b.msgId));
+          let maxT = 0;
+          for (const p of b.track.points.values()) if (p.t > maxT) maxT = p.t;
+          b.track.maxT = maxT;
+          b.reply(
+            failure
+              ? errorReply('JOURNAL_UNAVAILABLE', `${failure}; these points were not committed: send them again once the journal recovers`, b.msgId)
+              : errorReply('INTERNAL', `the journal could not commit: ${e instanceof Error ? e.message : String(e)}`, b.msgId),
+          );
         }
+        for (const c of closes) c.reply(errorReply(failure ? 'JOURNAL_UNAVAILABLE' : 'INTERNAL', `${failure ?? 'the journal could not commit'}; the track was not closed: send close again`, c.msg.id));
         return;
       }
+      this.journalRecovered();
       const touched = new Set<TrackState>();
       for (const b of batch) {
         for (const p of b.staged) {
@@ -426,7 +448,43 @@ export class EventService {
         }
       }
     }
-    for (const c of closes) c.reply(this.close(c.msg));
+    for (const c of closes) {
+      try {
+        c.reply(this.close(c.msg));
+      } catch (e) {
+        const failure = this.journalFailed(e);
+        if (!failure) throw e;
+        c.reply(errorReply('JOURNAL_UNAVAILABLE', `${failure}; the track was not closed: send close again once the journal recovers`, c.msg.id));
+      }
+    }
+  }
+
+  // ---------------------------------------------------------------- journal faults
+
+  /** Record a journal write failure (returns its description), or undefined when `e` is not one. */
+  private journalFailed(e: unknown): string | undefined {
+    const failure = journalWriteFailure(e);
+    if (failure && !this.journalFault) {
+      this.journalFault = { reason: failure, since: this.clock() };
+      this.changes$.next({ kind: 'journal' });
+    }
+    return failure;
+  }
+
+  private journalRecovered(): void {
+    if (!this.journalFault) return;
+    const was = this.journalFault;
+    this.journalFault = undefined;
+    this.changes$.next({ kind: 'journal' });
+    try {
+      this.appendLog('event', null, null, null, { text: `journal writable again after ${((this.clock() - was.since) / 1000).toFixed(1)} s (${was.reason}); data refused meanwhile must be sent again` });
+    } catch {
+      // failed again: the next commit reports it
+    }
+  }
+
+  journalStatus(): JournalStatusView {
+    return this.journalFault ? { writable: false, reason: this.journalFault.reason, since: this.journalFault.since } : { writable: true };
   }
 
   private close(msg: CloseMessage): ServerReply {
@@ -755,6 +813,7 @@ export class EventService {
       evidence: this.evidence ? { ...this.evidence, note: EVIDENCE_NOTE } : undefined,
       log: this.log.slice(-this.limits.logEntries),
       cautions: [...CAUTIONS],
+      journal: this.journalStatus(),
     };
   }
 
@@ -843,7 +902,12 @@ export class EventService {
 
   private track<T>(p: Promise<T>): void {
     const q = p.catch((e: unknown) => {
-      if (!this.closed) this.appendLog('event', null, null, null, { text: `internal failure: ${e instanceof Error ? e.message : String(e)}` });
+      if (this.closed || this.journalFailed(e)) return; // a journal fault is shown as such; results are recomputed after a restart
+      try {
+        this.appendLog('event', null, null, null, { text: `internal failure: ${e instanceof Error ? e.message : String(e)}` });
+      } catch {
+        // the journal failed too: never an unhandled rejection
+      }
     });
     this.inflight.add(q);
     void q.finally(() => this.inflight.delete(q));

@@ -52,6 +52,18 @@ export class JournalError extends Error {
   }
 }
 
+/**
+ * Is this error the journal failing to write (disk full, read-only file or folder, I/O error),
+ * as opposed to a bug? better-sqlite3 raises SqliteError with SQLite's extended result code name
+ * (sqlite.org/rescode.html: SQLITE_FULL, SQLITE_READONLY_*, SQLITE_IOERR_*, SQLITE_CANTOPEN).
+ */
+export function journalWriteFailure(e: unknown): string | undefined {
+  const code = typeof e === 'object' && e !== null && 'code' in e ? String((e as { code: unknown }).code) : '';
+  if (!/^SQLITE_(FULL|READONLY|IOERR|CANTOPEN)/.test(code)) return undefined;
+  const what = code.startsWith('SQLITE_FULL') ? 'the disk is full' : code.startsWith('SQLITE_READONLY') ? 'the journal is read-only' : code.startsWith('SQLITE_CANTOPEN') ? 'the journal file cannot be opened' : 'the disk failed a read or write';
+  return `${what} (${code}: ${e instanceof Error ? e.message : String(e)})`;
+}
+
 function versionAtLeast(v: string, min: number[]): boolean {
   const parts = v.split('.').map(Number);
   for (let i = 0; i < min.length; i++) {
@@ -111,7 +123,13 @@ export class Journal {
     } catch (e) {
       throw new JournalError('JOURNAL_UNWRITABLE', `cannot open the journal ${path}: ${e instanceof Error ? e.message : String(e)}`);
     }
-    const version = (db.prepare('SELECT sqlite_version() AS v').get() as { v: string }).v;
+    let version: string;
+    try {
+      version = (db.prepare('SELECT sqlite_version() AS v').get() as { v: string }).v;
+    } catch (e) {
+      db.close();
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot open the journal ${path}: ${journalWriteFailure(e) ?? (e instanceof Error ? e.message : String(e))}`);
+    }
     if (!versionAtLeast(version, MIN_SQLITE)) {
       db.close();
       throw new JournalError('JOURNAL_SQLITE', `SQLite ${version} is older than ${MIN_SQLITE.join('.')} (WAL-reset bug)`);
@@ -142,7 +160,12 @@ export class Journal {
       db.close();
       throw new JournalError('JOURNAL_VERSION', `journal ${path} has schema version ${stored}; this build reads ${JOURNAL_SCHEMA_VERSION}`);
     }
-    j.setMeta('schemaVersion', String(JOURNAL_SCHEMA_VERSION));
+    try {
+      j.setMeta('schemaVersion', String(JOURNAL_SCHEMA_VERSION));
+    } catch (e) {
+      db.close();
+      throw new JournalError('JOURNAL_UNWRITABLE', `cannot write to the journal ${path}: ${journalWriteFailure(e) ?? (e instanceof Error ? e.message : String(e))}`);
+    }
     return j;
   }
 
@@ -249,8 +272,12 @@ export class Journal {
   }
 
   close(): void {
-    if (this.db.open) {
+    if (!this.db.open) return;
+    try {
       this.db.pragma('wal_checkpoint(TRUNCATE)');
+    } catch {
+      // a full or read-only disk: the WAL stays beside the file and is replayed on the next open
+    } finally {
       this.db.close();
     }
   }

@@ -14,7 +14,21 @@ import { DEFAULT_LIMITS } from './limits.js';
 
 export const PROTOCOL_VERSION = 1;
 
-const id = z.string().min(1).max(DEFAULT_LIMITS.maxIdLength);
+/**
+ * Identifiers (message ids, vignettes, tracks) must be well-formed Unicode without control
+ * characters: a lone surrogate cannot be stored as UTF-8 in the journal, so after a restart the
+ * track would come back under another name and its producer could not resume it.
+ */
+const LONE_SURROGATE = /[\ud800-\udbff](?![\udc00-\udfff])|(?<![\ud800-\udbff])[\udc00-\udfff]/;
+const CONTROL = /[\u0000-\u001f\u007f]/;
+export function isCleanIdentifier(s: string): boolean {
+  return !LONE_SURROGATE.test(s) && !CONTROL.test(s);
+}
+const id = z
+  .string()
+  .min(1)
+  .max(DEFAULT_LIMITS.maxIdLength)
+  .refine(isCleanIdentifier, { message: 'identifiers must be well-formed Unicode without control characters' });
 const trackRef = { vignette: id, track: id };
 
 export const pointSchema = z.strictObject({
@@ -92,6 +106,7 @@ export const ERROR_CODES = {
   BEYOND_HORIZON: 'the point is later than the vignette horizon',
   INCOMPLETE: 'close before all points up to lastSeq arrived',
   RATE_LIMITED: 'too many messages; slow down',
+  JOURNAL_UNAVAILABLE: 'the journal cannot be written (disk full, read-only, I/O error); nothing of this message was committed: resend it once the journal recovers',
   INTERNAL: 'the server failed to process the message',
 } as const;
 export type ErrorCode = keyof typeof ERROR_CODES;

@@ -22,6 +22,7 @@ import { createServer, type IncomingMessage, type Server, type ServerResponse } 
 import type { Duplex } from 'node:stream';
 import { extname, join, normalize, resolve } from 'node:path';
 import { timingSafeEqual } from 'node:crypto';
+import { monitorEventLoopDelay } from 'node:perf_hooks';
 import { Subject } from 'rxjs';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { loadPlan, type EventPlan } from '../plan.js';
@@ -205,9 +206,17 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       (e: unknown) => sendJson(res, 500, { error: 'INTERNAL', reason: e instanceof Error ? e.message : String(e) }),
     );
   };
+  const decode = (s: string): string | undefined => {
+    try {
+      return decodeURIComponent(s);
+    } catch {
+      return undefined;
+    }
+  };
   const handleHttp = (req: IncomingMessage, res: ServerResponse) => {
     try {
       const url = new URL(req.url ?? '/', 'http://localhost');
+      if (decode(url.pathname) === undefined) return sendJson(res, 400, { error: 'BAD_REQUEST', reason: `the path ${url.pathname.slice(0, 200)} is not valid percent-encoding` });
       if (req.method !== 'GET' && req.method !== 'HEAD') return sendJson(res, 405, { error: 'METHOD_NOT_ALLOWED', reason: 'read-only endpoints: use GET' });
       const path = url.pathname;
       if (path === '/api/state') return sendJson(res, 200, svc.snapshot());
@@ -215,7 +224,14 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       if (path === '/api/plan') return sendJson(res, 200, activePlan);
       if (path === '/api/debrief.zip') return sendDebrief(res);
       if (path === '/api/schema/protocol') return sendJson(res, 200, protocolJsonSchema());
-      if (path === '/healthz') return sendJson(res, 200, { ok: !worker.broken, worker: worker.broken?.message ?? 'running', queue: worker.queued, sqlite: journal.sqliteVersion });
+      if (path === '/healthz') {
+        const j = svc.journalStatus();
+        const mem = process.memoryUsage();
+        const ms = (ns: number) => Math.round(ns / 1e4) / 100;
+        const eventLoop = { p50Ms: ms(loopDelay.percentile(50)), p99Ms: ms(loopDelay.percentile(99)), maxMs: ms(loopDelay.max) };
+        if (url.searchParams.has('reset')) loopDelay.reset();
+        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion, eventLoop, memory: { rssBytes: mem.rss, heapUsedBytes: mem.heapUsed } });
+      }
       const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);
       if (run) {
         const d = svc.detail(decodeURIComponent(run[1]), decodeURIComponent(run[2]));
@@ -245,11 +261,15 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     }
   };
   const server: Server = createServer(handleHttp);
+  // Event-loop delay of this process (perf_hooks histogram, ns), reported by /healthz.
+  const loopDelay = monitorEventLoopDelay({ resolution: 10 });
+  loopDelay.enable();
 
   // ------------------------------------------------------------- WebSocket
   const wss = new WebSocketServer({ noServer: true, maxPayload: limits.maxPayload, perMessageDeflate: false });
   const watchers = new Set<Watcher>();
   const alive = new WeakMap<WebSocket, boolean>();
+  const roles = new WeakMap<WebSocket, Role>();
   const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void }>();
   const sub = inbound$
     .pipe(batchPerTurn())
@@ -294,6 +314,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
 
   const onConnection = (ws: WebSocket, role: Role) => {
     alive.set(ws, true);
+    roles.set(ws, role);
     ws.on('pong', () => alive.set(ws, true));
     ws.on('error', (e) => log(`socket error (${role}): ${e.message}`));
     let tokens = limits.messageBurst;
@@ -362,9 +383,11 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
         }
       case 'log':
         return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
+      case 'journal':
+        return ['journal', { type: 'journal', journal: svc.journalStatus() }];
     }
   };
-  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : 'combined');
+  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : c.kind === 'journal' ? 'journal' : 'combined');
   const MAX_QUEUE = 5000;
   const changesSub = svc.changes$
     .pipe(conflatePerKey(changeKey, 1000 / limits.dashboardUpdatesPerSecond, { idleMs: 60_000, isLast: (c) => c.kind === 'log' }))
@@ -374,6 +397,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       for (const w of watchers) {
         w.queue.set(m[0], m[1]);
         if (w.queue.size > MAX_QUEUE) {
+          log(`dropping a dashboard with ${MAX_QUEUE} updates waiting`);
           w.ws.terminate();
           watchers.delete(w);
           continue;
@@ -387,6 +411,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   const heartbeat = setInterval(() => {
     for (const ws of wss.clients) {
       if (alive.get(ws) === false) {
+        log(`dropping a ${roles.get(ws) === 'watcher' ? 'dashboard' : 'producer'} connection that stopped reading (no answer to a ping within ${limits.heartbeatMs} ms)`);
         ws.terminate();
         continue;
       }
@@ -428,6 +453,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     journal,
     close() {
       closing ??= (async () => {
+        loopDelay.disable();
         clearInterval(heartbeat);
         clearInterval(drainTimer);
         for (const ws of wss.clients) ws.terminate();

@@ -112,6 +112,15 @@ export interface TimelinePoint {
   readonly evidence?: number;
 }
 
+/** Whether the journal accepts writes; while it does not, nothing is acknowledged. */
+export interface JournalStatusView {
+  readonly writable: boolean;
+  /** What failed (disk full, read-only, I/O error), while not writable. */
+  readonly reason?: string;
+  /** Server clock (ms since the epoch) of the first failure. */
+  readonly since?: number;
+}
+
 export interface EventView {
   readonly plan: {
     readonly name: string;
@@ -126,6 +135,7 @@ export interface EventView {
   readonly evidence?: EvidenceView;
   readonly log: readonly LogEntryView[];
   readonly cautions: readonly string[];
+  readonly journal: JournalStatusView;
 }
 
 /** One run in full: raw samples, smoothed curve, envelope of its vignette, projection, scores. */
@@ -155,7 +165,8 @@ export type WatchMessage =
   | { readonly type: 'run'; readonly run: RunView }
   | { readonly type: 'vignette'; readonly vignette: VignetteView }
   | { readonly type: 'combined'; readonly combined: EventView['combined']; readonly timeline: EventView['timeline']; readonly evidence?: EventView['evidence'] }
-  | { readonly type: 'log'; readonly entry: LogEntryView };
+  | { readonly type: 'log'; readonly entry: LogEntryView }
+  | { readonly type: 'journal'; readonly journal: JournalStatusView };
 
 /** Envelope arrays for JSON (NaN-free). */
 export function envelopeView(env: readonly ChannelEnvelope[]): NonNullable<RunDetail['envelope']> {

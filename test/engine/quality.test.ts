@@ -6,7 +6,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { observedWindow } from '../../engine/grid.js';
-import { closeTrack, initialQuality, observePoint, type QualityChannel, type QualityFlag, type QualityOptions, type QualityPoint } from '../../engine/quality.js';
+import { closeTrack, initialQuality, observePoint, type QualityChannel, type QualityFlag, type QualityOptions, type QualityPoint, type QualityState } from '../../engine/quality.js';
 import { createRng } from '../../engine/rng.js';
 import type { RawTrack } from '../../engine/types.js';
 import { DROPOUT, GLITCH, HORIZON, demoPlanJson, generateLiveRun, generateScenario } from '../../ingest/demo/scenario.js';
@@ -219,10 +219,25 @@ describe('reducer contract', () => {
     const { t, y } = regular(60);
     let state = initialQuality({ channels: one });
     for (const p of single(t, y).slice(0, 50)) state = observePoint(state, p).state;
-    const before = structuredClone(state);
+    // What the state holds: the held points are the window [start, end) of an array states share.
+    const view = (q: QualityState) => ({ ...q, buffer: q.buffer.arr.slice(q.buffer.start, q.buffer.end) });
+    const before = structuredClone(view(state));
     observePoint(state, { seq: 99, t: t[50], values: [y[50] + 100] });
     closeTrack(state, 100);
-    expect(state).toEqual(before);
+    expect(view(state)).toEqual(before);
+  });
+
+  it('two different next points from the same state give what each gives from a copy of it', () => {
+    const { t, y } = regular(60);
+    let state = initialQuality({ channels: one });
+    for (const p of single(t, y).slice(0, 50)) state = observePoint(state, p).state;
+    const copy = structuredClone(state);
+    const a = { seq: 51, t: t[50], values: [y[50] + 100] };
+    const b = { seq: 51, t: t[50], values: [y[50]] };
+    const fromA = observePoint(state, a);
+    const fromB = observePoint(state, b); // the shared array already holds a after the window of state
+    expect(closeTrack(fromB.state, 100)).toEqual(closeTrack(observePoint(structuredClone(copy), b).state, 100));
+    expect(closeTrack(fromA.state, 100)).toEqual(closeTrack(observePoint(structuredClone(copy), a).state, 100));
   });
 
   it('rejects a point with the wrong number of values, a non-finite time, or a non-positive limit', () => {

@@ -3,10 +3,10 @@
  * system Chromium driven by playwright-core, and a page watcher that records console errors and
  * every request the page makes.
  *
- * Browser: Debian's `chromium` at /usr/bin/chromium (or PLUMBLINE_CHROMIUM). playwright-core 1.64
- * speaks the DevTools protocol of Chromium 156; the major version is checked against the pin
- * (node_modules/playwright-core/browsers.json), and a missing or mismatched browser fails the test
- * with the command that installs it. No browser is ever downloaded.
+ * Browser: Debian's `chromium` at /usr/bin/chromium (or PLUMBLINE_CHROMIUM), found or installed by
+ * `npm test`'s pretest step (test/support/ensure-browser.ts). The accepted Chromium majors and their
+ * source are in test/support/chromium.ts; a missing or too old browser fails the test with the
+ * command that installs it. No browser is ever downloaded.
  *
  * Build: the tests serve dist/dashboard (what `npm run build` writes). When it is missing or older
  * than any source of the dashboard, `vite build` is run here first (about 5 s), so `vitest run`
@@ -16,13 +16,13 @@ import { execFileSync } from 'node:child_process';
 import { existsSync, mkdirSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { chromium, type Browser, type ConsoleMessage, type Page } from 'playwright-core';
+import { CHROMIUM, INSTALL, installedVersion, judgeMajor, parseMajor, pinnedChromiumMajor } from '../../support/chromium.js';
+
+export { CHROMIUM, pinnedChromiumMajor };
 
 export const ROOT = resolve(import.meta.dirname, '../../..');
 export const DIST = join(ROOT, 'dist', 'dashboard');
 export const ARTIFACTS = join(ROOT, 'test', 'artifacts');
-export const CHROMIUM = process.env.PLUMBLINE_CHROMIUM ?? '/usr/bin/chromium';
-
-const INSTALL = 'apt-get update && apt-get install -y chromium';
 
 function newestMtime(path: string): number {
   const s = statSync(path);
@@ -66,25 +66,14 @@ export function ensureDashboardBuilt(): 'fresh' | 'built' {
   }
 }
 
-/** The Chromium major version playwright-core was built for. */
-export function pinnedChromiumMajor(): number {
-  const browsers = JSON.parse(readFileSync(join(ROOT, 'node_modules', 'playwright-core', 'browsers.json'), 'utf8')) as { browsers: Array<{ name: string; browserVersion: string }> };
-  const c = browsers.browsers.find((b) => b.name === 'chromium');
-  if (!c) throw new Error('playwright-core/browsers.json names no chromium');
-  return Number(c.browserVersion.split('.')[0]);
-}
-
 /** Launch the system Chromium headless; throws (never skips) with the install command when it is missing. */
 export async function launchChromium(): Promise<Browser> {
-  if (!existsSync(CHROMIUM)) {
-    throw new Error(`The dashboard's browser tests need Chromium at ${CHROMIUM} and it is not there. Install Debian's package: \`${INSTALL}\` (or set PLUMBLINE_CHROMIUM to a Chromium ${pinnedChromiumMajor()} binary). No browser is downloaded by npm.`);
+  const version = installedVersion();
+  if (version === undefined) {
+    throw new Error(`The dashboard's browser tests need Chromium at ${CHROMIUM} and it is not there. Install Debian's package: \`${INSTALL}\` (\`npm test\` does it when run as root) or set PLUMBLINE_CHROMIUM. No browser is downloaded by npm.`);
   }
-  const version = execFileSync(CHROMIUM, ['--version'], { encoding: 'utf8' }).trim();
-  const major = Number(/(\d+)\./.exec(version)?.[1]);
-  const pinned = pinnedChromiumMajor();
-  if (major !== pinned) {
-    throw new Error(`${CHROMIUM} is "${version}" but playwright-core in package.json is built for Chromium ${pinned}: install the matching Debian chromium (\`${INSTALL}\`) or change the playwright-core pin.`);
-  }
+  const verdict = judgeMajor(parseMajor(version), pinnedChromiumMajor());
+  if (!verdict.ok) throw new Error(verdict.message);
   return chromium.launch({
     executablePath: CHROMIUM,
     headless: true,

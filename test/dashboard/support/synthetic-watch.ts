@@ -112,6 +112,7 @@ export async function startSyntheticServer(options: SyntheticOptions): Promise<S
     timeline: [],
     log: log.slice(-500),
     cautions: ['Synthetic data for a load test.'],
+    journal: { writable: true },
   });
 
   /** Deterministic noise in (-1.7, 1.7) for index i of stream k (what the real server sends does not change between fetches either). */
