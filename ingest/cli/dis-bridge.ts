@@ -3,7 +3,7 @@
  * service as runs, until SIGINT/SIGTERM; then close the open runs and print the counters.
  */
 import type { EventPlan } from '../plan.js';
-import { BridgeError, formatStats, parseListen, startDisBridge } from '../dis/bridge.js';
+import { BridgeError, formatStats, isMulticast, parseListen, startDisBridge } from '../dis/bridge.js';
 import { FeedClientError } from '../dis/feed-client.js';
 import { loadDisMapping, resolveMapping } from '../dis/mapping.js';
 
@@ -27,13 +27,18 @@ export async function disBridgeCommand(o: DisBridgeCommand): Promise<number> {
   if (silence !== undefined && !(typeof o.silence === 'string' && Number.isFinite(silence) && silence > 0)) {
     throw new DisBridgeUsageError(`--silence must be a number of seconds > 0, got ${String(o.silence)}`);
   }
+  let listen: { host: string; port: number };
+  try {
+    listen = parseListen(o.listen);
+  } catch (e) {
+    throw new DisBridgeUsageError(e instanceof Error ? e.message : String(e));
+  }
+  if (o.group !== undefined && !isMulticast(o.group)) throw new DisBridgeUsageError(`--group must be a multicast address, got ${JSON.stringify(o.group)}`);
   const entries = resolveMapping(await loadDisMapping(o.mapPath), o.plan, o.mapPath);
   let bridge;
   try {
-    const { host, port } = parseListen(o.listen);
-    bridge = await startDisBridge({ host, port, group: o.group, url: o.url, token: o.token, plan: o.plan, entries, silence, onEvent: (line) => process.stderr.write(`${line}\n`) });
+    bridge = await startDisBridge({ ...listen, group: o.group, url: o.url, token: o.token, plan: o.plan, entries, silence, onEvent: (line) => process.stderr.write(`${line}\n`) });
   } catch (e) {
-    if (e instanceof BridgeError && (e.code === 'BAD_LISTEN' || e.code === 'BAD_GROUP')) throw new DisBridgeUsageError(e.message);
     if (e instanceof BridgeError || e instanceof FeedClientError) throw new DisBridgeError(e.message);
     throw e;
   }

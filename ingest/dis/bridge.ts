@@ -196,7 +196,11 @@ function convert(s: EntityState, x: number, y: number, z: number): number[] {
 }
 
 export interface DisBridgeOptions {
-  /** Address to bind: a unicast address of this host, 0.0.0.0 / :: for any (broadcast), and the port (0: any free port). */
+  /**
+   * Address to bind: a unicast address of this host, or 0.0.0.0 / :: for any (needed for broadcast);
+   * with `group`, the interface address to join the group on (0.0.0.0 / ::: the system's choice).
+   * The port 0 takes any free port.
+   */
   readonly host: string;
   readonly port: number;
   /** Multicast group to join (IPv4 224.0.0.0/4 or IPv6 ff00::/8). */
@@ -242,7 +246,8 @@ export function parseListen(url: string): { host: string; port: number } {
   return { host: u.hostname.replace(/^\[|\]$/g, ''), port };
 }
 
-function isMulticast(group: string): boolean {
+/** An IPv4 224.0.0.0/4 or IPv6 ff00::/8 address. */
+export function isMulticast(group: string): boolean {
   if (isIP(group) === 4) {
     const first = Number(group.split('.')[0]);
     return first >= 224 && first <= 239;
@@ -291,7 +296,9 @@ export async function startDisBridge(options: DisBridgeOptions): Promise<Running
   try {
     await new Promise<void>((res, rej) => {
       socket.once('error', rej);
-      socket.bind(options.port, options.group !== undefined && (options.host === '0.0.0.0' || options.host === '::') ? undefined : options.host, () => {
+      // With a group, bind to the any-address (a socket bound to a unicast address does not see
+      // datagrams sent to the group) and join on the interface HOST names.
+      socket.bind(options.port, options.group !== undefined ? undefined : options.host, () => {
         socket.off('error', rej);
         res();
       });
