@@ -101,7 +101,8 @@ export class EntityRouter {
 
   private lookup(pdu: EntityStatePdu): EntityState | undefined {
     const list = this.byId.get(entityKey(pdu.entityId.site, pdu.entityId.application, pdu.entityId.entity));
-    return list?.find((s) => s.entry.exercise === undefined || s.entry.exercise === pdu.exercise);
+    // an entry for this exercise wins over one for any exercise
+    return list?.find((s) => s.entry.exercise === pdu.exercise) ?? list?.find((s) => s.entry.exercise === undefined);
   }
 
   /** Handle one datagram received at `nowMs`. */

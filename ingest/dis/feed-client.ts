@@ -19,6 +19,8 @@ export interface FeedClientOptions {
   readonly batch?: number;
   readonly window?: number;
   readonly maxReconnects?: number;
+  /** Most points a track holds unacknowledged (service unreachable); later points are refused and counted as BUFFER_FULL. */
+  readonly maxBuffered?: number;
   readonly onEvent?: (line: string) => void;
   /** Called when the server confirms a close, or says at open that the track is already closed. */
   readonly onClosed?: (vignette: string, track: string, alreadyClosed: boolean) => void;
@@ -47,6 +49,8 @@ export class FeedClientError extends Error {
 }
 
 const key = (v: string, t: string) => `${v}/${t}`;
+/** Default of `maxBuffered`: about 28 h of one entity at 2 Hz. */
+export const DEFAULT_MAX_BUFFERED = 200_000;
 
 export class FeedClient {
   private ws?: WebSocket;
@@ -149,6 +153,8 @@ export class FeedClient {
         this.commit(o, r.committedSeq);
       } else if (o && r.type === 'closed' && !o.closed) {
         o.closed = true;
+        // a closed track is done: forget it (the bridge names each run once)
+        this.tracks.delete(key(o.vignette, o.track));
         this.options.onClosed?.(o.vignette, o.track, false);
       }
     } else if (r.type === 'error') {
@@ -191,6 +197,10 @@ export class FeedClient {
   add(vignette: string, track: string, t: number, values: number[]): number {
     const o = this.tracks.get(key(vignette, track));
     if (!o || o.closeRequested || o.closed) return 0;
+    if (o.buffer.length >= (this.options.maxBuffered ?? DEFAULT_MAX_BUFFERED)) {
+      this.count('BUFFER_FULL');
+      return 0;
+    }
     o.lastSeq++;
     o.buffer.push({ seq: o.lastSeq, t, values });
     return o.lastSeq;

@@ -6,7 +6,7 @@
  * bearing 30 + 3t degrees, placed in geocentric coordinates with the transpose of the EPSG 9836
  * rotation (written out here), so the expected channel values are known analytically.
  */
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { createSocket } from 'node:dgram';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -93,6 +93,13 @@ describe('mapping file', () => {
     const m = parseDisMapping(JSON.stringify({ ...MAPPING, channels: { x: 'east', y: 'north' }, entities: [{ ...MAPPING.entities[0], conversion: 'enu' }] }), 'm.json');
     expect(resolveMapping(m, enuPlan)[0].quantities).toEqual(['east', 'north']);
   });
+  it('the example mapping of the README is valid', () => {
+    const readme = readFileSync('README.md', 'utf8');
+    const block = /The mapping file \(JSON[\s\S]*?```json\n([\s\S]*?)\n```/.exec(readme);
+    expect(block).not.toBeNull();
+    const m = parseDisMapping(block![1], 'README.md');
+    expect(m.entities[0]).toMatchObject({ site: 10, application: 20, entity: 7, conversion: 'range-bearing', source: 'live' });
+  });
   it('parses udp://HOST:PORT', () => {
     expect(parseListen('udp://0.0.0.0:3000')).toEqual({ host: '0.0.0.0', port: 3000 });
     expect(parseListen('udp://[::1]:3001')).toEqual({ host: '::1', port: 3001 });
@@ -142,6 +149,18 @@ describe('router (no I/O)', () => {
     expect(r.points.length).toBe(6); // t = 0..5 (horizon 5 s)
     expect(r.log).toEqual(['open V2/usv-8', 'close V2/usv-8 horizon']);
     expect(router.stats.pastHorizon).toBe(3);
+  });
+
+  it('an entry for the PDU\'s exercise wins over one for any exercise', () => {
+    const r = recorder();
+    const m = parseDisMapping(JSON.stringify({ sites: MAPPING.sites, entities: [
+      { site: 10, application: 20, entity: 7, vignette: 'V1', track: 'any', sensor: 'mast-a' },
+      { exercise: 5, site: 10, application: 20, entity: 7, vignette: 'V2', track: 'five', sensor: 'mast-a' },
+    ] }), 'm.json');
+    const router = new EntityRouter(plan, resolveMapping(m, plan), r.sink, 1000);
+    router.datagram(pathPdu(0, 0, 7, 7, 5), 0);
+    router.datagram(pathPdu(0, 0, 7, 7, 6), 0);
+    expect(r.log).toEqual(['open V2/five', 'open V1/any']);
   });
 
   it('filters by exercise and counts unmapped entities, bad PDUs and late stamps', () => {
@@ -235,6 +254,37 @@ describe('end to end over loopback', () => {
       expect(detail?.run.status).toBe('complete');
       expect(detail?.raw.t.length).toBe(5);
       expect(Math.abs((detail?.raw.values[0][4] ?? 0) - pathRange(4))).toBeLessThan(1e-3);
+    } finally {
+      tx.close();
+      await bridge.close();
+      await server.close();
+    }
+  });
+
+  it('a service restart mid-run loses nothing: the bridge reconnects and resends from the committed point', async () => {
+    const planPath = join(dir, 'plan.json');
+    writeFileSync(planPath, JSON.stringify(PLAN));
+    const journalPath = join(dir, 'restart.sqlite');
+    let server = await startServer({ planPath, journalPath, port: 0 });
+    const port = Number(new URL(server.url).port);
+    const bridge = await startDisBridge({ host: '127.0.0.1', port: 0, url: `ws://127.0.0.1:${port}/feed`, plan, entries, silence: 5 });
+    const tx = createSocket('udp4');
+    const send = (k: number) => new Promise<void>((res, rej) => tx.send(pathPdu(k * 0.5, 0, 7), bridge.address.port, '127.0.0.1', (e) => (e ? rej(e) : res())));
+    const waitPoints = async (n: number) => {
+      const until = Date.now() + 15_000;
+      while (Date.now() < until && (server.service.detail('V1', 'usv-7')?.run.points ?? 0) < n) await new Promise((r) => setTimeout(r, 50));
+      return server.service.detail('V1', 'usv-7')?.run.points;
+    };
+    try {
+      for (let k = 0; k < 10; k++) await send(k);
+      expect(await waitPoints(10)).toBe(10);
+      await server.close();
+      for (let k = 10; k < 20; k++) await send(k); // buffered by the bridge while the service is down
+      server = await startServer({ planPath, journalPath, port });
+      expect(await waitPoints(20)).toBe(20);
+      expect(bridge.feed.reconnects).toBeGreaterThanOrEqual(1);
+      const raw = server.service.detail('V1', 'usv-7')?.raw as { t: number[] };
+      expect(raw.t.map((t) => Math.round(t * 2))).toEqual(Array.from({ length: 20 }, (_, k) => k));
     } finally {
       tx.close();
       await bridge.close();
