@@ -8,6 +8,7 @@
  *   serve       the live service: WebSocket feed, journal, running assessment, dashboard
  *   replay      send recorded tracks to a running service as a producer would
  *   report      write the debrief package (report.html, results.json, runs.csv, notes.csv)
+ *   dis-bridge  receive DIS Entity State PDUs over UDP and feed them to a running service as runs
  *
  * Exit codes: 0 success; 2 bad input or usage; 3 internal failure.
  */
@@ -27,6 +28,8 @@ import { resultsJsonSchema } from '../debrief/results-schema.js';
 import { JournalError } from '../service/journal.js';
 import { protocolJsonSchema } from '../service/protocol.js';
 import { replay, ReplayError } from '../service/replay.js';
+import { DisMappingError } from '../dis/mapping.js';
+import { disBridgeCommand, DisBridgeError, DisBridgeUsageError } from './dis-bridge.js';
 import { ServeError, startServer } from '../service/server.js';
 import { loadPlan } from '../plan.js';
 import { readTracks } from '../tracks-reader.js';
@@ -65,6 +68,11 @@ commands:
       write the debrief package into DIR (default debrief/): report.html (self-contained,
       prints to PDF), results.json, runs.csv, notes.csv; from a journal (read, not changed),
       a running service or an assessment document
+  dis-bridge --listen udp://HOST:PORT [--group MULTICAST_ADDR] --map FILE [--plan FILE]
+             [--url ws://HOST:PORT/feed] [--silence S] [--token-file F]
+      receive DIS Entity State PDUs (versions 6 and 7; unicast, broadcast or a multicast
+      group) and send each mapped entity to a running service as a run, its position
+      converted to the plan's channels; a run closes after S seconds without PDUs (default 10)
 
 exit codes: 0 success, 2 bad input or usage, 3 internal failure`;
 
@@ -148,6 +156,29 @@ async function run(argv: string[]): Promise<number> {
       return reportCommand(rest);
     case 'replay':
       return replayCommand(rest);
+    case 'dis-bridge': {
+      const { values } = parse(rest, {
+        listen: { type: 'string' },
+        group: { type: 'string' },
+        url: { type: 'string' },
+        plan: { type: 'string' },
+        map: { type: 'string' },
+        silence: { type: 'string' },
+        'token-file': { type: 'string' },
+      });
+      const url = typeof values.url === 'string' ? values.url : `ws://127.0.0.1:${DEFAULT_PORT}/feed`;
+      const planPath = typeof values.plan === 'string' ? values.plan : undefined;
+      const plan = planPath ? await loadPlan(planPath) : await fetchPlan(url);
+      return disBridgeCommand({
+        listen: required(values.listen, 'listen'),
+        group: typeof values.group === 'string' ? values.group : undefined,
+        url,
+        plan,
+        mapPath: required(values.map, 'map'),
+        silence: values.silence,
+        token: token(values),
+      });
+    }
     case undefined:
     case 'help':
     case '--help':
@@ -317,15 +348,15 @@ export async function main(argv: string[]): Promise<number> {
   try {
     return await run(argv);
   } catch (e) {
-    if (e instanceof UsageError) {
+    if (e instanceof UsageError || e instanceof DisBridgeUsageError) {
       process.stderr.write(`plumbline: ${e.message}\n\n${USAGE}\n`);
       return EXIT_INPUT;
     }
-    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError || e instanceof DebriefError) {
+    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError || e instanceof DebriefError || e instanceof DisBridgeError) {
       process.stderr.write(`plumbline: ${e.message}\n`);
       return EXIT_INPUT;
     }
-    if (e instanceof InputError) {
+    if (e instanceof InputError || e instanceof DisMappingError) {
       process.stderr.write(`plumbline: ${e.message}\n`);
       for (const issue of e.issues) process.stderr.write(`  ${issue}\n`);
       return EXIT_INPUT;

@@ -1,0 +1,346 @@
+/**
+ * The DIS entity-state bridge: a producer in front of the live service.
+ *
+ *   UDP datagram → splitDatagram (pdu.ts) → EntityRouter: mapping lookup (exercise, site,
+ *   application, entity) → run state → TrackClock (time.ts) → LocalFrame (geodesy.ts) → plan
+ *   channels → FeedClient (feed protocol v1) → the service
+ *
+ * A run opens at its entity's first Entity State PDU and closes after `silence` seconds of receive
+ * time without one, or at the first PDU past the vignette horizon (later PDUs of that entity are
+ * then ignored until it has been silent for `silence` seconds). An entity that reappears after its
+ * run closed starts the next run, `<track>-r2`, `-r3`, ... Bad PDUs are counted by code and never
+ * stop the bridge; so are PDUs of other types, unmapped entities and stamps that do not move forward.
+ */
+import { createSocket, type Socket } from 'node:dgram';
+import { isIP } from 'node:net';
+import type { EventPlan } from '../plan.js';
+import { FeedClient } from './feed-client.js';
+import { LocalFrame } from './geodesy.js';
+import { type ResolvedEntity } from './mapping.js';
+import { splitDatagram, type EntityStatePdu } from './pdu.js';
+import { TrackClock } from './time.js';
+
+/** Limits and defaults of the bridge. */
+export const BRIDGE_DEFAULTS = {
+  /** Seconds without a PDU after which a run is closed. */
+  silence: 10,
+  /** How often runs are checked for silence, ms (at most; a quarter of the silence when shorter). */
+  silenceCheckMs: 250,
+  /** How often buffered points are sent, ms. */
+  flushMs: 50,
+  /** Largest datagram read, bytes (a DIS PDU is at most 8192 bytes). */
+  maxDatagram: 8192,
+} as const;
+
+/** Counters of everything the bridge saw (all cumulative). */
+export interface BridgeStats {
+  datagrams: number;
+  entityStatePdus: number;
+  otherPdus: number;
+  /** Malformed PDUs, by decoder error code. */
+  bad: Record<string, number>;
+  /** Entity State PDUs of entities (or exercises) the mapping does not name. */
+  unmapped: number;
+  /** PDUs whose time stamp did not move the run's time forward (late or repeated). */
+  notAfter: number;
+  /** PDUs whose absolute/relative time bit differs from the run's first PDU. */
+  timeKindChanged: number;
+  /** PDUs past the vignette horizon or of a run that ended at it and is not yet silent. */
+  pastHorizon: number;
+  points: number;
+  runsOpened: number;
+  runsClosed: number;
+}
+
+export function emptyStats(): BridgeStats {
+  return { datagrams: 0, entityStatePdus: 0, otherPdus: 0, bad: {}, unmapped: 0, notAfter: 0, timeKindChanged: 0, pastHorizon: 0, points: 0, runsOpened: 0, runsClosed: 0 };
+}
+
+/** What the router asks its sink to do. */
+export interface RunSink {
+  open(vignette: string, track: string, source: 'live' | 'sim'): void;
+  point(vignette: string, track: string, t: number, values: number[]): void;
+  close(vignette: string, track: string, why: 'silence' | 'horizon' | 'stop'): void;
+}
+
+interface EntityState {
+  readonly entry: ResolvedEntity;
+  readonly frame: LocalFrame;
+  readonly horizon: number;
+  /** Runs started so far for this entity. */
+  runs: number;
+  run?: { track: string; clock: TrackClock; ended: boolean };
+  lastHeardMs: number;
+}
+
+/** Entity id as a map key; the exercise is matched separately. */
+const entityKey = (site: number, application: number, entity: number) => `${site}:${application}:${entity}`;
+
+/**
+ * Routing without I/O: PDUs in, run opens / points / closes out through a sink. Time comes from
+ * the caller (receive time in ms), so tests drive it directly.
+ */
+export class EntityRouter {
+  readonly stats: BridgeStats = emptyStats();
+  private readonly byId = new Map<string, EntityState[]>();
+
+  constructor(
+    plan: EventPlan,
+    entries: readonly ResolvedEntity[],
+    private readonly sink: RunSink,
+    private readonly silenceMs: number = BRIDGE_DEFAULTS.silence * 1000,
+  ) {
+    const horizons = new Map(plan.vignettes.map((v) => [v.id, v.horizon]));
+    for (const entry of entries) {
+      const k = entityKey(entry.site, entry.application, entry.entity);
+      const list = this.byId.get(k) ?? [];
+      list.push({ entry, frame: new LocalFrame(entry.siteLocation), horizon: horizons.get(entry.vignette) ?? Number.POSITIVE_INFINITY, runs: 0, lastHeardMs: Number.NEGATIVE_INFINITY });
+      this.byId.set(k, list);
+    }
+  }
+
+  private lookup(pdu: EntityStatePdu): EntityState | undefined {
+    const list = this.byId.get(entityKey(pdu.entityId.site, pdu.entityId.application, pdu.entityId.entity));
+    // an entry for this exercise wins over one for any exercise
+    return list?.find((s) => s.entry.exercise === pdu.exercise) ?? list?.find((s) => s.entry.exercise === undefined);
+  }
+
+  /** Handle one datagram received at `nowMs`. */
+  datagram(bytes: Uint8Array, nowMs: number): void {
+    this.stats.datagrams++;
+    for (const item of splitDatagram(bytes)) {
+      if (item.kind === 'error') this.stats.bad[item.error.code] = (this.stats.bad[item.error.code] ?? 0) + 1;
+      else if (item.kind === 'other') this.stats.otherPdus++;
+      else this.entityState(item.pdu, nowMs);
+    }
+  }
+
+  /** Handle one decoded Entity State PDU received at `nowMs`. */
+  entityState(pdu: EntityStatePdu, nowMs: number): void {
+    this.stats.entityStatePdus++;
+    const s = this.lookup(pdu);
+    if (!s) {
+      this.stats.unmapped++;
+      return;
+    }
+    this.silent(nowMs, s);
+    s.lastHeardMs = nowMs;
+    if (!s.run) {
+      s.runs++;
+      const track = s.runs === 1 ? s.entry.track : `${s.entry.track}-r${s.runs}`;
+      s.run = { track, clock: new TrackClock(), ended: false };
+      this.stats.runsOpened++;
+      this.sink.open(s.entry.vignette, track, s.entry.source);
+    }
+    const run = s.run;
+    if (run.ended) {
+      this.stats.pastHorizon++;
+      return;
+    }
+    const reading = run.clock.read(pdu.timestamp, nowMs);
+    if (!reading.ok) {
+      if (reading.reason === 'not-after') this.stats.notAfter++;
+      else this.stats.timeKindChanged++;
+      return;
+    }
+    if (reading.t > s.horizon) {
+      this.stats.pastHorizon++;
+      run.ended = true;
+      this.stats.runsClosed++;
+      this.sink.close(s.entry.vignette, run.track, 'horizon');
+      return;
+    }
+    const [x, y, z] = pdu.location;
+    const values = convert(s, x, y, z);
+    this.stats.points++;
+    this.sink.point(s.entry.vignette, run.track, reading.t, values);
+  }
+
+  /** Close runs silent for longer than the silence at `nowMs` (only `only`, when given). */
+  silent(nowMs: number, only?: EntityState): void {
+    const check = (s: EntityState) => {
+      if (s.run && nowMs - s.lastHeardMs > this.silenceMs) {
+        if (!s.run.ended) {
+          this.stats.runsClosed++;
+          this.sink.close(s.entry.vignette, s.run.track, 'silence');
+        }
+        s.run = undefined;
+      }
+    };
+    if (only) check(only);
+    else for (const list of this.byId.values()) list.forEach(check);
+  }
+
+  /** Close every run still open (the bridge is stopping). */
+  closeAll(): void {
+    for (const list of this.byId.values()) {
+      for (const s of list) {
+        if (s.run && !s.run.ended) {
+          this.stats.runsClosed++;
+          this.sink.close(s.entry.vignette, s.run.track, 'stop');
+        }
+        s.run = undefined;
+      }
+    }
+  }
+}
+
+function convert(s: EntityState, x: number, y: number, z: number): number[] {
+  const q = s.entry.quantities;
+  if (s.entry.conversion === 'enu') {
+    const [east, north, up] = s.frame.enu(x, y, z);
+    const by = { east, north, up } as Record<string, number>;
+    return q.map((name) => by[name]);
+  }
+  const rb = s.frame.rangeBearing(x, y, z) as Record<string, number>;
+  return q.map((name) => rb[name]);
+}
+
+export interface DisBridgeOptions {
+  /**
+   * Address to bind: a unicast address of this host, or 0.0.0.0 / :: for any (needed for broadcast);
+   * with `group`, the interface address to join the group on (0.0.0.0 / ::: the system's choice).
+   * The port 0 takes any free port.
+   */
+  readonly host: string;
+  readonly port: number;
+  /** Multicast group to join (IPv4 224.0.0.0/4 or IPv6 ff00::/8). */
+  readonly group?: string;
+  /** The service's feed, ws://HOST:PORT/feed. */
+  readonly url: string;
+  readonly token?: string;
+  readonly plan: EventPlan;
+  readonly entries: readonly ResolvedEntity[];
+  /** Seconds without a PDU after which a run closes. */
+  readonly silence?: number;
+  readonly onEvent?: (line: string) => void;
+}
+
+export interface RunningBridge {
+  /** The bound UDP address and port. */
+  readonly address: { address: string; port: number };
+  readonly stats: BridgeStats;
+  readonly feed: FeedClient;
+  /** Close open runs, wait for the service to confirm (bounded), and release the socket. */
+  close(): Promise<void>;
+}
+
+export class BridgeError extends Error {
+  constructor(readonly code: 'BAD_LISTEN' | 'BAD_GROUP' | 'BIND_FAILED', message: string) {
+    super(message);
+    this.name = 'BridgeError';
+  }
+}
+
+/** Parse `udp://HOST:PORT` (IPv6 hosts in brackets). */
+export function parseListen(url: string): { host: string; port: number } {
+  let u: URL;
+  try {
+    u = new URL(url);
+  } catch {
+    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
+  }
+  const port = Number(u.port);
+  if (u.protocol !== 'udp:' || u.hostname === '' || u.port === '' || !Number.isInteger(port) || port < 0 || port > 65535) {
+    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
+  }
+  return { host: u.hostname.replace(/^\[|\]$/g, ''), port };
+}
+
+/** An IPv4 224.0.0.0/4 or IPv6 ff00::/8 address. */
+export function isMulticast(group: string): boolean {
+  if (isIP(group) === 4) {
+    const first = Number(group.split('.')[0]);
+    return first >= 224 && first <= 239;
+  }
+  return isIP(group) === 6 && /^ff/i.test(group);
+}
+
+/** Start the bridge: bind the UDP socket (joining the group), connect to the feed, route PDUs. */
+export async function startDisBridge(options: DisBridgeOptions): Promise<RunningBridge> {
+  const say = options.onEvent ?? (() => undefined);
+  const silence = options.silence ?? BRIDGE_DEFAULTS.silence;
+  if (options.group !== undefined && !isMulticast(options.group)) throw new BridgeError('BAD_GROUP', `--group must be a multicast address, got ${JSON.stringify(options.group)}`);
+  const family = isIP(options.host) === 6 ? 'udp6' : 'udp4';
+  const feed = new FeedClient({
+    url: options.url,
+    token: options.token,
+    channels: options.plan.channels.map((c) => c.name),
+    onEvent: say,
+    onClosed: (v, t, already) => say(already ? `run ${v}/${t} was already closed in the service; its points are not sent` : `run ${v}/${t} closed`),
+  });
+  await feed.connect();
+  const router = new EntityRouter(options.plan, options.entries, {
+    open: (v, t, source) => {
+      say(`run ${v}/${t} opened`);
+      feed.open(v, t, source);
+    },
+    point: (v, t, time, values) => {
+      feed.add(v, t, time, values);
+    },
+    close: (v, t, why) => {
+      say(`run ${v}/${t} closing (${why})`);
+      feed.close(v, t);
+    },
+  }, silence * 1000);
+
+  const socket: Socket = createSocket({ type: family, reuseAddr: true });
+  socket.on('message', (msg) => {
+    try {
+      router.datagram(msg.length > BRIDGE_DEFAULTS.maxDatagram ? msg.subarray(0, BRIDGE_DEFAULTS.maxDatagram) : msg, performance.now());
+    } catch (e) {
+      router.stats.bad.INTERNAL = (router.stats.bad.INTERNAL ?? 0) + 1;
+      say(`bridge: a datagram failed: ${e instanceof Error ? e.message : String(e)}`);
+    }
+  });
+  socket.on('error', (e) => say(`udp: ${e.message}`));
+  try {
+    await new Promise<void>((res, rej) => {
+      socket.once('error', rej);
+      // With a group, bind to the any-address (a socket bound to a unicast address does not see
+      // datagrams sent to the group) and join on the interface HOST names.
+      socket.bind(options.port, options.group !== undefined ? undefined : options.host, () => {
+        socket.off('error', rej);
+        res();
+      });
+    });
+    if (options.group !== undefined) {
+      const iface = options.host === '0.0.0.0' || options.host === '::' ? undefined : options.host;
+      socket.addMembership(options.group, iface);
+    } else {
+      socket.setBroadcast(true);
+    }
+  } catch (e) {
+    feed.stop();
+    socket.close();
+    throw new BridgeError('BIND_FAILED', `cannot listen on udp://${options.host}:${options.port}${options.group ? ` (group ${options.group})` : ''}: ${e instanceof Error ? e.message : String(e)}`);
+  }
+  const flush = setInterval(() => feed.pump(), BRIDGE_DEFAULTS.flushMs);
+  const silenceTimer = setInterval(() => router.silent(performance.now()), Math.max(10, Math.min(BRIDGE_DEFAULTS.silenceCheckMs, (silence * 1000) / 4)));
+  const addr = socket.address();
+  say(`listening for DIS Entity State PDUs on udp://${addr.address}:${addr.port}${options.group ? ` (group ${options.group})` : ''}`);
+  return {
+    address: { address: addr.address, port: addr.port },
+    stats: router.stats,
+    feed,
+    close: async () => {
+      clearInterval(flush);
+      clearInterval(silenceTimer);
+      await new Promise<void>((res) => socket.close(() => res()));
+      router.closeAll();
+      await feed.drain();
+      feed.stop();
+    },
+  };
+}
+
+/** One line per counter that is not zero, for the end-of-run summary. */
+export function formatStats(s: BridgeStats): string {
+  const bad = Object.entries(s.bad).map(([code, n]) => `${code} ${n}`);
+  return [
+    `${s.datagrams} datagrams, ${s.entityStatePdus} Entity State PDUs, ${s.otherPdus} other PDUs`,
+    `${s.points} points in ${s.runsOpened} runs (${s.runsClosed} closed)`,
+    `ignored: ${s.unmapped} unmapped, ${s.notAfter} not after the previous stamp, ${s.timeKindChanged} time kind changed, ${s.pastHorizon} past the horizon`,
+    `bad PDUs: ${bad.length === 0 ? 'none' : bad.join(', ')}`,
+  ].join('\n');
+}
