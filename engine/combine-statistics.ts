@@ -23,13 +23,11 @@
  * The draws come from a generator seeded by the plan's seed and a label: the same event gives the
  * same value everywhere.
  */
-import type { PerStatistic, StatisticName } from './calibrate.js';
-import { combinePValues, type Combined } from './combine.js';
+import { STATISTICS, type PerStatistic, type StatisticName } from './calibrate.js';
+import { cauchyTerm, combinePValues, type Combined } from './combine.js';
 import { normalQuantile } from './normal.js';
 import { createRng, seedFor } from './rng.js';
 import type { CombinationMethod } from './types.js';
-
-export const STATISTIC_NAMES: readonly StatisticName[] = ['l2', 'score', 'residual'];
 
 /** Default number of Monte Carlo draws of the calibration. */
 export const DEFAULT_DRAWS = 9999;
@@ -58,7 +56,7 @@ function scoreOf(method: CombinationMethod): (p: number) => number {
     case 'stouffer':
       return (p) => -normalQuantile(p);
     case 'cauchy':
-      return (p) => (p < 0.25 ? 1 / Math.tan(Math.PI * p) : p > 0.75 ? -1 / Math.tan(Math.PI * (1 - p)) : Math.tan((0.5 - p) * Math.PI));
+      return cauchyTerm;
     case 'tippett':
       return (p) => -p;
   }
@@ -101,14 +99,14 @@ export function combineStatistics(
     residual: combinePValues(runs.map((r) => r.pValues.residual), method),
   };
   let leading: StatisticName = 'l2';
-  for (const s of STATISTIC_NAMES) if (byStatistic[s].pValue < byStatistic[leading].pValue) leading = s;
+  for (const s of STATISTICS) if (byStatistic[s].pValue < byStatistic[leading].pValue) leading = s;
   const minP = byStatistic[leading].pValue;
 
   const f = scoreOf(method);
   const sum = method !== 'tippett';
   const aggregate = (values: readonly number[]): number => (sum ? values.reduce((a, b) => a + b, 0) : Math.max(...values));
   let observed = -Infinity;
-  for (const s of STATISTIC_NAMES) observed = Math.max(observed, aggregate(runs.map((r) => f(r.pValues[s]))));
+  for (const s of STATISTICS) observed = Math.max(observed, aggregate(runs.map((r) => f(r.pValues[s]))));
 
   const tables = runs.map((r) => {
     const n = r.nullPValues.l2.length;

@@ -70,7 +70,8 @@ function tippett(p: ArrayLike<number>): Combined {
   return { method: 'tippett', statistic: m, pValue: -Math.expm1(p.length * Math.log1p(-m)), count: p.length };
 }
 
-function cauchyTerm(p: number): number {
+/** tan((½ − p)π) of the Cauchy combination, evaluated as a cotangent near both ends (module comment). */
+export function cauchyTerm(p: number): number {
   if (p < 0.25) return 1 / Math.tan(Math.PI * p);
   if (p > 0.75) return -1 / Math.tan(Math.PI * (1 - p));
   return Math.tan((0.5 - p) * Math.PI);

@@ -102,10 +102,29 @@ export interface EventAssessment {
 
 export type EventProgress = (stage: 'baseline' | 'runs', vignette: string, done: number, total: number) => void;
 
-/** A run's window and the simulated curves cut to it (cached curves for the full window). */
-export function windowAndCurves(baseline: Baseline, run: RawTrack): { window: TrackWindow; curves: Float64Array[] } {
-  const window = observedWindow(run.t, baseline.horizon, baseline.settings.gapFactor, baseline.grid.step);
-  return { window, curves: curvesForWindow(baseline, window).curves };
+/** A judged window: the simulated curves cut to it and their calibration reference (./calibrate.ts). */
+export interface PreparedWindow {
+  readonly window: TrackWindow;
+  readonly curves: readonly Float64Array[];
+  /** Absent when fewer than 19 simulated tracks cover the window (no run can be judged on it). */
+  readonly reference?: CalibrationReference;
+}
+
+/**
+ * The simulated curves of a window (the cached ones for the full window, else re-smoothed) and
+ * their calibration reference. Depends on the baseline and the window only, so callers that judge
+ * many runs keep it per window (the batch path per event, the service per vignette).
+ */
+export function prepareWindow(baseline: Baseline, window: TrackWindow): PreparedWindow {
+  const curves = curvesForWindow(baseline, window).curves;
+  const s = baseline.settings;
+  const reference = curves.length >= 19 ? buildReference(curves, windowWeights(baseline.grid, window), baseline.channels.length, s.components, s.seed ?? DEFAULT_TIE_SEED) : undefined;
+  return { window, curves, reference };
+}
+
+/** The window a run is judged on: the part of the horizon it observed (./grid.ts). */
+export function runWindow(baseline: Baseline, run: RawTrack): TrackWindow {
+  return observedWindow(run.t, baseline.horizon, baseline.settings.gapFactor, baseline.grid.step);
 }
 
 /**
@@ -113,18 +132,9 @@ export function windowAndCurves(baseline: Baseline, run: RawTrack): { window: Tr
  * for a run that stands out at the plan's alpha, the kind of discrepancy. The batch command and the
  * live service both call this, so they report the same numbers.
  */
-export function judgeRun(
-  baseline: Baseline,
-  run: RawTrack,
-  simMean: Float64Array,
-  prepared?: { window: TrackWindow; curves: readonly Float64Array[]; reference?: CalibrationReference },
-): RunOutcome {
-  const { window, curves } = prepared ?? windowAndCurves(baseline, run);
-  const settings = baseline.settings;
+export function judgeRun(baseline: Baseline, run: RawTrack, simMean: Float64Array, prepared: PreparedWindow = prepareWindow(baseline, runWindow(baseline, run))): RunOutcome {
   // One calibration reference for the judgement and the diagnosis's reassessments on this window.
-  const reference =
-    prepared?.reference ??
-    (curves.length >= 19 ? buildReference(curves, windowWeights(baseline.grid, window), baseline.channels.length, settings.components, settings.seed ?? DEFAULT_TIE_SEED) : undefined);
+  const { window, curves, reference } = prepared;
   const a = assessRun(baseline, run, { window, windowCurves: curves, reference });
   const practical = practicalDifference(a.curve, a.active, curves, baseline.grid, baseline.channels);
   const standsOut = a.result.pValues.overall <= baseline.settings.alpha;
@@ -165,15 +175,13 @@ export function assessEvent(
     const simMean = baseline ? meanCurve(baseline.curves) : undefined;
     const pvals: RunPValues[] = [];
     // Runs judged on the same window share its simulated curves and their calibration reference.
-    const windows = new Map<string, { window: TrackWindow; curves: Float64Array[]; reference?: CalibrationReference }>();
-    const prepare = (b: Baseline, run: RawTrack) => {
-      const window = observedWindow(run.t, b.horizon, b.settings.gapFactor, b.grid.step);
+    const windows = new Map<string, PreparedWindow>();
+    const prepare = (b: Baseline, run: RawTrack): PreparedWindow => {
+      const window = runWindow(b, run);
       const key = windowKey(window);
       let hit = windows.get(key);
       if (!hit) {
-        const curves = curvesForWindow(b, window).curves;
-        const reference = curves.length >= 19 ? buildReference(curves, windowWeights(b.grid, window), b.channels.length, b.settings.components, b.settings.seed ?? DEFAULT_TIE_SEED) : undefined;
-        hit = { window, curves, reference };
+        hit = prepareWindow(b, window);
         windows.set(key, hit);
       }
       return { ...hit, window };

@@ -3,14 +3,14 @@
  * holds the simulated tracks of every vignette, fits baselines and judges runs. The worker thread
  * (./compute-worker.ts) wraps it; tests can call it directly. All statistics come from engine/.
  */
-import { assessRun, baselineEnvelope, buildBaseline, curvesForWindow, NotAssessableError, type Baseline, type RunAssessment } from '../../engine/assess.js';
+import { assessRun, baselineEnvelope, buildBaseline, NotAssessableError, type Baseline, type RunAssessment } from '../../engine/assess.js';
 import { adviseEvent, type RunAdvice } from '../../engine/advisor.js';
 import type { Diagnosis } from '../../engine/diagnosis.js';
 import { DEFAULT_STRATEGY, eventEvidence, type CombinedEvidence, type StreamRun } from '../../engine/evidence/index.js';
-import { judgeRun, meanCurve, rmsDeviation, summariseBaseline, type ModelSummary, type RunOutcome } from '../../engine/event.js';
+import { judgeRun, meanCurve, prepareWindow, rmsDeviation, runWindow, summariseBaseline, type ModelSummary, type RunOutcome } from '../../engine/event.js';
 import { practicalDifference, type ChannelDifference } from '../../engine/practical.js';
 import type { ChannelEnvelope } from '../../engine/envelope.js';
-import { buildReference, DEFAULT_TIE_SEED, type CalibrationReference } from '../../engine/calibrate.js';
+import type { CalibrationReference } from '../../engine/calibrate.js';
 import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
 import { fitProjectionModel, projectRemainder, type Projection, type ProjectionModel } from '../../engine/projection.js';
 import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
@@ -111,7 +111,7 @@ interface VignetteState {
 }
 
 interface WindowEntry {
-  readonly curves: Float64Array[];
+  readonly curves: readonly Float64Array[];
   readonly reference: CalibrationReference;
 }
 
@@ -183,9 +183,7 @@ export class Compute {
       v.windows.set(key, hit);
       return hit;
     }
-    const curves = curvesForWindow(v.baseline, window).curves;
-    const b = v.baseline;
-    const reference = curves.length >= 19 ? buildReference(curves, windowWeights(b.grid, window), b.channels.length, b.settings.components, b.settings.seed ?? DEFAULT_TIE_SEED) : undefined;
+    const { curves, reference } = prepareWindow(v.baseline, window);
     if (!reference) throw new NotAssessableError(`only ${curves.length} simulated tracks cover the window; at least 19 are needed for p = 0.05`);
     const entry = { curves, reference };
     v.windows.set(key, entry);
@@ -261,7 +259,7 @@ export class Compute {
       let practical: ChannelDifference[] | undefined;
       let diagnosis: Diagnosis | undefined;
       if (mode === 'final') {
-        const window = observedWindow(run.t, ready.baseline.horizon, this.config.analysis.gapFactor, ready.baseline.grid.step);
+        const window = runWindow(ready.baseline, run);
         const entry = this.windowEntry(ready, window);
         const outcome = judgeRun(ready.baseline, run, v.simMean, { window, curves: entry.curves, reference: entry.reference });
         assessment = outcome.assessment as RunAssessment;

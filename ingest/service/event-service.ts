@@ -691,10 +691,6 @@ export class EventService {
       .sort((a, b) => (order.get(a.vignette) ?? 0) - (order.get(b.vignette) ?? 0) || (a.track < b.track ? -1 : a.track > b.track ? 1 : 0));
   }
 
-  private finalReports(): RunReport[] {
-    return this.finalTracks().map((t) => t.report as RunReport);
-  }
-
   /**
    * Each statistic combined across the judged runs and their calibrated minimum, as the batch path
    * computes it (engine/combine-statistics.ts); `label` is the family's name in the draws' seed.

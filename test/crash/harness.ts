@@ -18,11 +18,12 @@
  */
 import { spawn, type ChildProcess } from 'node:child_process';
 import { existsSync } from 'node:fs';
-import { createServer } from 'node:net';
 import { join, resolve } from 'node:path';
 import Database from 'better-sqlite3';
 import WebSocket from 'ws';
 import { assessEvent } from '../../engine/event.js';
+import { createRng } from '../../engine/rng.js';
+import { freePort } from '../support/net.js';
 import type { RawTrack } from '../../engine/types.js';
 import { writeDemoFiles } from '../../ingest/cli/demo-files.js';
 import { loadPlan, type EventPlan } from '../../ingest/plan.js';
@@ -60,31 +61,7 @@ export interface CrashSummary {
   readonly problems: string[];
 }
 
-/** mulberry32 (a small seeded generator; Tommy Ettinger's public-domain design, common practice). */
-function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
 const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
-
-async function freePort(): Promise<number> {
-  return new Promise((res, rej) => {
-    const s = createServer();
-    s.once('error', rej);
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address();
-      const port = typeof a === 'object' && a ? a.port : 0;
-      s.close(() => res(port));
-    });
-  });
-}
 
 /** The service as a child process. */
 class Service {
@@ -327,7 +304,8 @@ function checkJournal(path: string, tracks: ReadonlyArray<{ track: RawTrack; ord
 export async function runCrash(options: CrashOptions): Promise<CrashSummary> {
   const log = options.log ?? (() => undefined);
   if (!existsSync(CLI)) throw new Error(`${CLI} is missing: run \`npm run build\` first`);
-  const random = rng(options.seed ?? 1);
+  const generator = createRng(options.seed ?? 1);
+  const random = (): number => generator.uniform();
   const speed = options.speed ?? 20;
   const files = await writeDemoFiles(join(options.dir, 'event'), { seed: options.seed ?? 1, simsPerVignette: options.simsPerVignette ?? 40, liveRunsPerVignette: options.liveRunsPerVignette ?? 1 });
   const plan: EventPlan = await loadPlan(files.plan);

@@ -16,11 +16,11 @@
  */
 import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
-import { createServer } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { parseArgs } from 'node:util';
 import WebSocket from 'ws';
+import { freePort } from '../support/net.js';
 
 export interface LoadOptions {
   readonly producers: number;
@@ -50,17 +50,6 @@ const LIMITS = { producers: 500, hz: 200, seconds: 900, dashboards: 100 };
 
 const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
 const quantile = (sorted: number[], q: number) => (sorted.length ? sorted[Math.min(sorted.length - 1, Math.floor(q * sorted.length))] : Number.NaN);
-
-async function freePort(): Promise<number> {
-  return new Promise((res, rej) => {
-    const s = createServer();
-    s.once('error', rej);
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address();
-      s.close(() => res(typeof a === 'object' && a ? a.port : 0));
-    });
-  });
-}
 
 function connect(url: string): Promise<WebSocket> {
   return new Promise((res, rej) => {

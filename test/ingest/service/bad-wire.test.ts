@@ -11,41 +11,15 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fc, test as propTest } from '@fast-check/vitest';
 import WebSocket from 'ws';
+import { feedClient, type FeedClient, type Reply } from '../../support/feed-client.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { writeDemoFiles } from '../../../ingest/cli/demo-files.js';
 import { loadPlan, type EventPlan } from '../../../ingest/plan.js';
 import { ERROR_CODES, parseClientMessage, type ErrorCode } from '../../../ingest/service/protocol.js';
 import { startServer, type RunningServer } from '../../../ingest/service/server.js';
 
-type Reply = Record<string, unknown>;
-
-interface Client {
-  ws: WebSocket;
-  replies: Reply[];
-  next(pred: (r: Reply) => boolean, ms?: number): Promise<Reply>;
-  closed: Promise<number>;
-}
-
-async function client(url: string): Promise<Client> {
-  const ws = new WebSocket(url);
-  const replies: Reply[] = [];
-  const waiters: Array<{ pred: (r: Reply) => boolean; resolve: (r: Reply) => void }> = [];
-  ws.on('message', (d) => {
-    const r = JSON.parse(d.toString()) as Reply;
-    replies.push(r);
-    for (const w of [...waiters]) if (w.pred(r)) { waiters.splice(waiters.indexOf(w), 1); w.resolve(r); }
-  });
-  const closed = new Promise<number>((r) => ws.once('close', (code) => r(code)));
-  await new Promise<void>((res, rej) => { ws.once('open', () => res()); ws.once('error', rej); });
-  const next = (pred: (r: Reply) => boolean, ms = 10_000) =>
-    new Promise<Reply>((resolve, reject) => {
-      const found = replies.find(pred);
-      if (found) return resolve(found);
-      const timer = setTimeout(() => reject(new Error(`no matching reply within ${ms} ms`)), ms);
-      waiters.push({ pred, resolve: (r) => { clearTimeout(timer); resolve(r); } });
-    });
-  return { ws, replies, next, closed };
-}
+type Client = FeedClient;
+const client = feedClient;
 
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-badwire-'));
 let plan: EventPlan;

@@ -16,33 +16,17 @@ import { closeSync, copyFileSync, mkdirSync, mkdtempSync, openSync, rmSync, writ
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import Database from 'better-sqlite3';
-import WebSocket from 'ws';
+import { feedClient, type Reply } from '../../support/feed-client.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { writeDemoFiles } from '../../../ingest/cli/demo-files.js';
 import { JournalError } from '../../../ingest/service/journal.js';
 import { startServer, type RunningServer } from '../../../ingest/service/server.js';
 import { DIST, ensureDashboardBuilt, launchChromium } from '../../dashboard/support/browser.js';
 
-type Reply = Record<string, unknown>;
-
+/** Replies here may wait behind a filling disk: 15 s. */
 async function client(url: string) {
-  const ws = new WebSocket(url);
-  const replies: Reply[] = [];
-  const waiters: Array<{ pred: (r: Reply) => boolean; resolve: (r: Reply) => void }> = [];
-  ws.on('message', (d) => {
-    const r = JSON.parse(d.toString()) as Reply;
-    replies.push(r);
-    for (const w of [...waiters]) if (w.pred(r)) { waiters.splice(waiters.indexOf(w), 1); w.resolve(r); }
-  });
-  await new Promise<void>((res, rej) => { ws.once('open', () => res()); ws.once('error', rej); });
-  const next = (pred: (r: Reply) => boolean) =>
-    new Promise<Reply>((resolve, reject) => {
-      const found = replies.find(pred);
-      if (found) return resolve(found);
-      const timer = setTimeout(() => reject(new Error('no matching reply within 15 s')), 15_000);
-      waiters.push({ pred, resolve: (r) => { clearTimeout(timer); resolve(r); } });
-    });
-  return { ws, replies, next };
+  const c = await feedClient(url);
+  return { ws: c.ws, replies: c.replies, next: (pred: (r: Reply) => boolean) => c.next(pred, 15_000) };
 }
 
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-disk-'));
