@@ -34,7 +34,7 @@ import { EventService, type Change, type Role } from './event-service.js';
 import { Journal, JournalError } from './journal.js';
 import { DEFAULT_LIMITS, type ServiceLimits } from './limits.js';
 import { batchPerTurn, conflatePerKey } from './operators.js';
-import { errorReply, parseClientMessage, protocolJsonSchema, type ServerReply } from './protocol.js';
+import { errorReply, parseClientMessage, protocolJsonSchema, type ClientMessage, type ServerReply } from './protocol.js';
 import type { WatchMessage } from './view.js';
 
 export interface ServeOptions {
@@ -65,6 +65,11 @@ export interface RunningServer {
   readonly host: string;
   readonly service: EventService;
   readonly journal: Journal;
+  /**
+   * An in-process source's entry: a producer message it built itself, taken through the same
+   * batch → validate → journal → acknowledge path as a `/feed` frame. `reply` gets the ack or error.
+   */
+  submit(message: ClientMessage, reply: (r: ServerReply) => void): void;
   close(): Promise<void>;
 }
 
@@ -270,12 +275,14 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   const watchers = new Set<Watcher>();
   const alive = new WeakMap<WebSocket, boolean>();
   const roles = new WeakMap<WebSocket, Role>();
-  const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void }>();
+  // Socket frames arrive as text and are parsed here; in-process sources (`RunningServer.submit`)
+  // hand over messages they built and checked themselves. Both go through the same batch and flush.
+  const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void } | { role: Role; message: ClientMessage; reply: (r: ServerReply) => void }>();
   const sub = inbound$
     .pipe(batchPerTurn())
     .subscribe((batch) => {
       for (const m of batch) {
-        const parsed = parseClientMessage(m.text);
+        const parsed = 'text' in m ? parseClientMessage(m.text) : ({ ok: true, message: m.message } as const);
         if (!parsed.ok) m.reply(parsed.error);
         else {
           try {
@@ -451,6 +458,9 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     host,
     service: svc,
     journal,
+    submit(message, reply) {
+      inbound$.next({ role: 'producer', message, reply });
+    },
     close() {
       closing ??= (async () => {
         loopDelay.disable();
