@@ -5,26 +5,27 @@
  * index, so the same event gives the same bytes in any process and ids never clash in one page.
  *
  * Colours are the dashboard's palette (Okabe & Ito); text and lines that carry meaning use the
- * darker variants that reach WCAG 2.1 AA contrast on white (dashboard/src/theme.ts).
+ * darker variants that reach WCAG 2.1 AA contrast on white (ingest/palette.ts).
  */
 import * as echarts from 'echarts';
+import { PALETTE } from '../palette.js';
 import type { RunDetail } from '../service/view.js';
 
-/** The palette, shared with the dashboard (dashboard/src/theme.ts COLORS). */
+/** The chart colours, from the palette the dashboard uses too (ingest/palette.ts). */
 export const CHART_COLORS = {
-  ink: '#1b2330',
-  muted: '#4f5968',
-  grid: '#e3e6eb',
-  sim: '#0072B2',
-  simDark: '#0b3a5c',
-  band99: '#dcebf6',
-  band90: '#b9d6ec',
-  band50: '#8dbde0',
-  simultaneous: '#8c3f73',
-  live: '#D55E00',
-  liveText: '#a64500',
-  judged: '#f3efe2',
-  threshold: '#8c3f73',
+  ink: PALETTE.ink,
+  muted: PALETTE.muted,
+  grid: PALETTE.grid,
+  sim: PALETTE.sim,
+  simDark: PALETTE.simDark,
+  band99: PALETTE.band99,
+  band90: PALETTE.band90,
+  band50: PALETTE.band50,
+  simultaneous: PALETTE.simultaneous,
+  live: PALETTE.live,
+  liveText: PALETTE.lowText,
+  judged: PALETTE.judged,
+  threshold: PALETTE.simultaneous,
 } as const;
 
 type Option = Record<string, unknown>;

@@ -8,6 +8,7 @@
  * Colours meet WCAG 2.1 AA contrast (4.5:1 for text) on screen and in print; colour is never the
  * only cue (verdicts carry a word and a mark).
  */
+import { PALETTE } from '../palette.js';
 import type { AssessmentReport, RunReport } from '../report.js';
 import type { RunDetail } from '../service/view.js';
 import { envelopeChart, evidenceChart, histogramChart, scoreChart, type Chart } from './charts.js';
@@ -66,14 +67,14 @@ export function settingsInWords(plan: AssessmentReport['plan']): string[] {
 
 const STYLE = `
 :root { color-scheme: light; }
-body { font: 14px/1.45 "Liberation Sans", Arial, Helvetica, sans-serif; margin: 1.5rem auto; max-width: 60rem; color: #1b2330; background: #ffffff; padding: 0 1rem; }
+body { font: 14px/1.45 "Liberation Sans", Arial, Helvetica, sans-serif; margin: 1.5rem auto; max-width: 60rem; color: ${PALETTE.ink}; background: ${PALETTE.panel}; padding: 0 1rem; }
 h1 { font-size: 1.55rem; margin: 0 0 .2rem; } h2 { font-size: 1.2rem; margin: 1.6rem 0 .4rem; border-bottom: 2px solid #c4ccd6; }
 h3 { font-size: 1.05rem; margin: 1rem 0 .3rem; }
 p { margin: .35rem 0; }
-.generated, .muted { color: #4f5968; }
-.status { border: 2px solid #1b2330; padding: .4rem .7rem; margin: .6rem 0; font-weight: 700; }
-.status.unfinished { border-color: #a64500; background: #fff3e8; }
-.cautions { border-left: 6px solid #a64500; background: #fff6ec; padding: .4rem 1rem; margin: .6rem 0; }
+.generated, .muted { color: ${PALETTE.muted}; }
+.status { border: 2px solid ${PALETTE.ink}; padding: .4rem .7rem; margin: .6rem 0; font-weight: 700; }
+.status.unfinished { border-color: ${PALETTE.lowText}; background: #fff3e8; }
+.cautions { border-left: 6px solid ${PALETTE.lowText}; background: #fff6ec; padding: .4rem 1rem; margin: .6rem 0; }
 .cautions ul { margin: .2rem 0; padding-left: 1.2rem; }
 .headline { font-size: 1.05rem; }
 .verdict { white-space: nowrap; } .verdict.yes { font-weight: 700; }
@@ -83,7 +84,7 @@ th, td { border-bottom: 1px solid #c4ccd6; padding: .2rem .45rem; text-align: le
 th { background: #eef1f5; }
 td.n, th.n { text-align: right; }
 figure { margin: .5rem 0; } figure svg { display: block; max-width: 100%; height: auto; }
-figcaption { font-size: 12px; color: #4f5968; }
+figcaption { font-size: 12px; color: ${PALETTE.muted}; }
 .evidence { display: flex; flex-wrap: wrap; gap: 0 1rem; align-items: flex-start; } .evidence > div { flex: 1 1 22rem; }
 .row { display: flex; flex-wrap: wrap; gap: .4rem 1rem; align-items: flex-start; }
 .row figure { margin: .2rem 0; }
