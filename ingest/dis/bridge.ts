@@ -20,10 +20,13 @@ import { createSocket, type Socket } from 'node:dgram';
 import { isIP } from 'node:net';
 import type { EventPlan } from '../plan.js';
 import { COUNTED_LOG_INTERVAL_MS, CountedLog } from './counted-log.js';
+import { BridgeError, isMulticast } from './listen.js';
 import { LocalFrame } from './geodesy.js';
 import { type ResolvedEntity } from './mapping.js';
 import { splitDatagram, type EntityStatePdu } from './pdu.js';
 import type { RunOutput } from './run-output.js';
+
+export { BridgeError, isMulticast, listenTarget, parseListen } from './listen.js';
 import { TrackClock } from './time.js';
 
 /** Limits and defaults of the bridge. */
@@ -249,37 +252,6 @@ export interface RunningDisSource {
 /** The output's log line when the service confirms a close (for its `onClosed`). */
 export function closedLine(vignette: string, track: string, alreadyClosed: boolean): string {
   return alreadyClosed ? `run ${vignette}/${track} was already closed in the service; its points are not sent` : `run ${vignette}/${track} closed`;
-}
-
-export class BridgeError extends Error {
-  constructor(readonly code: 'BAD_LISTEN' | 'BAD_GROUP' | 'BIND_FAILED', message: string) {
-    super(message);
-    this.name = 'BridgeError';
-  }
-}
-
-/** Parse `udp://HOST:PORT` (IPv6 hosts in brackets). */
-export function parseListen(url: string): { host: string; port: number } {
-  let u: URL;
-  try {
-    u = new URL(url);
-  } catch {
-    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
-  }
-  const port = Number(u.port);
-  if (u.protocol !== 'udp:' || u.hostname === '' || u.port === '' || !Number.isInteger(port) || port < 0 || port > 65535) {
-    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
-  }
-  return { host: u.hostname.replace(/^\[|\]$/g, ''), port };
-}
-
-/** An IPv4 224.0.0.0/4 or IPv6 ff00::/8 address. */
-export function isMulticast(group: string): boolean {
-  if (isIP(group) === 4) {
-    const first = Number(group.split('.')[0]);
-    return first >= 224 && first <= 239;
-  }
-  return isIP(group) === 6 && /^ff/i.test(group);
 }
 
 /** Start the source: bind the UDP socket (joining the group), route PDUs to the output. */
