@@ -3,7 +3,7 @@
  * errors, and the plan's JSON Schema (`plumbline schema plan`) checked with an independent JSON
  * Schema validator (npm `ajv` 8.20.0, draft 2020-12, the dialect zod 4 writes).
  */
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import Ajv2020 from 'ajv/dist/2020.js';
@@ -60,6 +60,16 @@ describe('plan sources.dis', () => {
       'sources.dis.entities[0]: plan channel "range" needs quantity "range", which conversion "enu" does not give (east, north, up)',
       'sources.dis.entities[0]: plan channel "bearing" needs quantity "bearing", which conversion "enu" does not give (east, north, up)',
     ]);
+  });
+});
+
+describe('the README', () => {
+  it('its sources.dis example is a valid block', () => {
+    const block = /```json\n("sources": \{[\s\S]*?\n\})\n```/.exec(readFileSync('README.md', 'utf8'));
+    expect(block).not.toBeNull();
+    const doc = JSON.parse(`{${block![1]}}`) as { sources: unknown };
+    const { sources } = parsePlanWithSources(JSON.stringify({ ...BASE, vignettes: [{ id: 'S1-L1', horizon: 60 }], sources: doc.sources }), 'README.md');
+    expect(sources.dis).toMatchObject({ listen: 'udp://239.1.2.3:3000', interface: '192.0.2.10', silence: 10 });
   });
 });
 
