@@ -10,7 +10,8 @@
  * know which.
  *
  * A run opens at its entity's first Entity State PDU and closes after `silence` seconds of receive
- * time without one, or at the first PDU past the vignette horizon (later PDUs of that entity are
+ * time without one (time the process was stalled not counted: StallFreeClock), or at the first
+ * PDU past the vignette horizon (later PDUs of that entity are
  * then ignored until it has been silent for `silence` seconds). An entity that reappears after its
  * run closed starts the next run, `<track>-r2`, `-r3`, ... Bad PDUs are counted by code and never
  * stop the bridge; so are PDUs of other types, unmapped entities and stamps that do not move forward.
@@ -254,6 +255,34 @@ export function closedLine(vignette: string, track: string, alreadyClosed: boole
   return alreadyClosed ? `run ${vignette}/${track} was already closed in the service; its points are not sent` : `run ${vignette}/${track} closed`;
 }
 
+/**
+ * `performance.now()` less the time the event loop was stalled: a periodic tick that comes more
+ * than one period late counts its lateness as stalled time.
+ */
+export class StallFreeClock {
+  private stalled = 0;
+  private last: number;
+
+  constructor(
+    private readonly periodMs: number,
+    private readonly wall: () => number = () => performance.now(),
+  ) {
+    this.last = wall();
+  }
+
+  /** Called every `periodMs`. */
+  tick(): void {
+    const t = this.wall();
+    const late = t - this.last - this.periodMs;
+    if (late > this.periodMs) this.stalled += late;
+    this.last = t;
+  }
+
+  now(): number {
+    return this.wall() - this.stalled;
+  }
+}
+
 /** Start the source: bind the UDP socket (joining the group), route PDUs to the output. */
 export async function startDisSource(options: DisSourceOptions): Promise<RunningDisSource> {
   const say = options.onEvent ?? (() => undefined);
@@ -276,10 +305,12 @@ export async function startDisSource(options: DisSourceOptions): Promise<Running
     },
   }, silence * 1000, (code, detail) => notices.note(code, detail));
 
+  const checkMs = Math.max(10, Math.min(BRIDGE_DEFAULTS.silenceCheckMs, (silence * 1000) / 4));
+  const clock = new StallFreeClock(checkMs);
   const socket: Socket = createSocket({ type: family, reuseAddr: true });
   socket.on('message', (msg) => {
     try {
-      router.datagram(msg.length > BRIDGE_DEFAULTS.maxDatagram ? msg.subarray(0, BRIDGE_DEFAULTS.maxDatagram) : msg, performance.now());
+      router.datagram(msg.length > BRIDGE_DEFAULTS.maxDatagram ? msg.subarray(0, BRIDGE_DEFAULTS.maxDatagram) : msg, clock.now());
     } catch (e) {
       router.stats.bad.INTERNAL = (router.stats.bad.INTERNAL ?? 0) + 1;
       notices.note('INTERNAL', () => `a datagram failed: ${e instanceof Error ? e.message : String(e)}`);
@@ -307,7 +338,14 @@ export async function startDisSource(options: DisSourceOptions): Promise<Running
     throw new BridgeError('BIND_FAILED', `cannot listen on udp://${options.host}:${options.port}${options.group ? ` (group ${options.group})` : ''}: ${e instanceof Error ? e.message : String(e)}`);
   }
   const flush = setInterval(() => output.pump(), BRIDGE_DEFAULTS.flushMs);
-  const silenceTimer = setInterval(() => router.silent(performance.now()), Math.max(10, Math.min(BRIDGE_DEFAULTS.silenceCheckMs, (silence * 1000) / 4)));
+  // Silence is measured on a clock that stops while the process is stalled (a long computation or
+  // a collection in the service): a datagram that waited in the socket buffer through a stall is
+  // not taken for a silence. The check runs after the loop's I/O phase (setImmediate), so the
+  // datagrams that arrived during a stall are routed before it.
+  const silenceTimer = setInterval(() => {
+    clock.tick();
+    setImmediate(() => router.silent(clock.now()));
+  }, checkMs);
   const noticeTimer = setInterval(() => notices.flush(), options.noticeIntervalMs ?? COUNTED_LOG_INTERVAL_MS);
   const addr = socket.address();
   say(`listening for DIS Entity State PDUs on udp://${addr.address}:${addr.port}${options.group ? ` (group ${options.group})` : ''}`);

@@ -8,6 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import Ajv2020 from 'ajv/dist/2020.js';
 import { afterAll, describe, expect, it } from 'vitest';
+import { StallFreeClock } from '../../../ingest/dis/bridge.js';
 import { CountedLog } from '../../../ingest/dis/counted-log.js';
 import { listenTarget } from '../../../ingest/dis/listen.js';
 import { serveDisConfig } from '../../../ingest/cli/serve-dis.js';
@@ -127,5 +128,25 @@ describe('CountedLog', () => {
     now = 1000;
     log.note('A', () => 'again');
     expect(lines.at(-1)).toBe('DIS: A: again');
+  });
+});
+
+describe('StallFreeClock', () => {
+  it('counts a tick that comes more than one period late as stalled time, and on-time ticks not at all', () => {
+    let wall = 1000;
+    const clock = new StallFreeClock(100, () => wall);
+    for (let k = 0; k < 5; k++) {
+      wall += 100;
+      clock.tick();
+    }
+    expect(clock.now()).toBe(1500);
+    wall += 150; // late by half a period: jitter, not a stall
+    clock.tick();
+    expect(clock.now()).toBe(1650);
+    wall += 900; // late by 800 ms
+    clock.tick();
+    expect(clock.now()).toBe(2550 - 800);
+    wall += 100;
+    expect(clock.now()).toBe(2650 - 800);
   });
 });

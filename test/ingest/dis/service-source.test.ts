@@ -190,8 +190,34 @@ describe('serve with the DIS source in the service process', () => {
       await sendAll(tx, source.address.port, group, TIMES.slice(0, 8).map((t) => openDisPdu(t, 7)));
       await until(() => server.service.detail('A1', 'usv-9')?.run.status === 'complete');
       const detail = server.service.detail('A1', 'usv-9');
-      expect(detail?.run).toMatchObject({ status: 'complete', points: 8 });
+      expect(detail?.run, JSON.stringify(source.counters())).toMatchObject({ status: 'complete', points: 8 });
       expect(Math.abs(detail!.raw.values[0][7] - pathRange(TIMES[7]))).toBeLessThan(1e-3);
+    } finally {
+      tx.close();
+      await source?.close();
+      await server.close();
+    }
+  });
+
+  it('a stalled process does not close a run whose PDUs are waiting in the socket buffer', async () => {
+    const server = await startServer({ plan, journalPath: join(dir, 'stall.sqlite'), port: 0 });
+    const tx = createSocket('udp4');
+    let source: RunningDisSource | undefined;
+    try {
+      source = await startServiceDisSource({ server, plan, config: { ...sources.dis!, silence: 0.3 } });
+      await sendAll(tx, source.address.port, '127.0.0.1', [openDisPdu(0, 7)]);
+      await until(() => source!.counters().points === 1);
+      // block the loop, as soon as the second PDU is sent, for longer than the silence: the PDU
+      // waits in the socket buffer while the silence timer falls due
+      await new Promise<void>((res, rej) =>
+        tx.send(openDisPdu(0.5, 7), source!.address.port, '127.0.0.1', (e) => {
+          const end = performance.now() + 800;
+          while (performance.now() < end);
+          return e ? rej(e) : res();
+        }),
+      );
+      await until(() => source!.counters().runsClosed === 1);
+      expect(source.counters()).toMatchObject({ datagrams: 2, points: 2, runsOpened: 1, runsClosed: 1 });
     } finally {
       tx.close();
       await source?.close();
