@@ -16,6 +16,7 @@ import { FeedClient } from '../../../ingest/dis/feed-client.js';
 import { geodeticToEcef } from '../../../ingest/dis/geodesy.js';
 import { resolveMapping, type DisSourceDocument } from '../../../ingest/dis/mapping.js';
 import { startServiceDisSource } from '../../../ingest/dis/service-source.js';
+import { startServeDis } from '../../../ingest/cli/serve-dis.js';
 import { encodeTimestamp } from '../../../ingest/dis/time.js';
 import { parsePlanWithSources } from '../../../ingest/plan.js';
 import { startServer, type RunningServer } from '../../../ingest/service/server.js';
@@ -195,6 +196,21 @@ describe('serve with the DIS source in the service process', () => {
     } finally {
       tx.close();
       await source?.close();
+      await server.close();
+    }
+  });
+
+  it('without a plan file, the mapping is checked against the plan in the journal', async () => {
+    const journalPath = join(dir, 'noplan.sqlite');
+    await (await startServer({ plan, journalPath, port: 0 })).close(); // the journal records the plan
+    const server = await startServer({ journalPath, port: 0 });
+    try {
+      const bad = { ...sources.dis!, entities: [{ ...sources.dis!.entities[0], vignette: 'Z9' }] };
+      await expect(startServeDis(server, undefined, { config: bad, origin: 'map.json' }, () => undefined)).rejects.toMatchObject({ code: 'MAPPING_PLAN', issues: ['entities.0.vignette: "Z9" is not a vignette of the plan'] });
+      const source = await startServeDis(server, undefined, { config: sources.dis!, origin: 'map.json' }, () => undefined);
+      expect(source.address.port).toBeGreaterThan(0);
+      await source.close();
+    } finally {
       await server.close();
     }
   });
