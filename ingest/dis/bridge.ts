@@ -23,7 +23,7 @@ import type { EventPlan } from '../plan.js';
 import { COUNTED_LOG_INTERVAL_MS, CountedLog } from './counted-log.js';
 import { BridgeError, isMulticast } from './listen.js';
 import { LocalFrame } from './geodesy.js';
-import { type ResolvedEntity } from './mapping.js';
+import { DEFAULT_SILENCE, type ResolvedEntity } from './mapping.js';
 import { splitDatagram, type EntityStatePdu } from './pdu.js';
 import type { RunOutput } from './run-output.js';
 
@@ -33,7 +33,7 @@ import { TrackClock } from './time.js';
 /** Limits and defaults of the bridge. */
 export const BRIDGE_DEFAULTS = {
   /** Seconds without a PDU after which a run is closed. */
-  silence: 10,
+  silence: DEFAULT_SILENCE,
   /** How often runs are checked for silence, ms (at most; a quarter of the silence when shorter). */
   silenceCheckMs: 250,
   /** How often buffered points are sent, ms. */

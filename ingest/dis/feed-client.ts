@@ -9,8 +9,6 @@ import WebSocket from 'ws';
 import type { ClientMessage, ServerReply } from '../service/protocol.js';
 import { TrackOutbox, type OutboxOptions } from './run-output.js';
 
-export { DEFAULT_MAX_BUFFERED } from './run-output.js';
-
 export interface FeedClientOptions extends OutboxOptions {
   readonly url: string;
   readonly token?: string;

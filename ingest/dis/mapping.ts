@@ -75,7 +75,7 @@ function checkEntities(m: { sites: Record<string, unknown>; entities: ReadonlyAr
 
 export const disMappingSchema = z.strictObject(mappingShape).superRefine(checkEntities);
 
-/** Default seconds without a PDU after which a run closes (also `BRIDGE_DEFAULTS.silence`). */
+/** Default seconds without a PDU after which a run closes (`BRIDGE_DEFAULTS.silence`). */
 export const DEFAULT_SILENCE = 10;
 
 function listenProblem(url: string): string | undefined {
