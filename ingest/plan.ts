@@ -15,6 +15,7 @@ import {
   type ComponentRule,
 } from '../engine/types.js';
 import { InputError } from './errors.js';
+import { disSourceSchema, mappingPlanIssues, type DisSource } from './dis/mapping.js';
 
 /** A plan channel: the engine's ChannelSpec plus the largest plausible rate of change (units/s). */
 export interface PlanChannel extends ChannelSpec {
@@ -158,7 +159,22 @@ export const planSchema = z.strictObject({
     .min(1, { error: 'must list at least one vignette' })
     .superRefine(uniqueBy((v) => v.id, 'id', 'vignette id')),
   analysis: analysisSchema.prefault({}),
+  sources: z
+    .strictObject({
+      dis: disSourceSchema.optional().describe('DIS Entity State PDUs received by `plumbline serve` (ingest/dis/)'),
+    })
+    .optional()
+    .describe('live sources that `plumbline serve` runs in its own process; not part of the event (not recorded in the journal)'),
+}).superRefine((doc, ctx) => {
+  const dis = doc.sources?.dis;
+  if (!dis) return;
+  for (const issue of mappingPlanIssues(dis, doc).issues) ctx.addIssue({ code: 'custom', path: ['sources', 'dis', ...issue.path], message: issue.message, input: dis });
 });
+
+/** The plan's live sources (`sources` in the plan file). */
+export interface PlanSources {
+  readonly dis?: DisSource;
+}
 
 export type PlanDocument = z.input<typeof planSchema>;
 
@@ -238,13 +254,18 @@ function parseDocument(text: string, fileName: string): unknown {
  * 'PLAN_INVALID' listing every schema issue as `path: message` (also in `error.issues`).
  */
 export function parsePlan(text: string, fileName: string): EventPlan {
+  return parsePlanWithSources(text, fileName).plan;
+}
+
+/** `parsePlan`, also giving the plan's live sources (which are not part of the `EventPlan`). */
+export function parsePlanWithSources(text: string, fileName: string): { plan: EventPlan; sources: PlanSources } {
   const doc = parseDocument(text.replace(/^\uFEFF/, ''), fileName);
   const result = planSchema.safeParse(doc);
   if (!result.success) {
     const issues = result.error.issues.map((i) => `${formatPath(i.path)}: ${i.message}`);
     throw new InputError('PLAN_INVALID', { file: fileName, reason: issues.join('; '), issues });
   }
-  return toEventPlan(result.data);
+  return { plan: toEventPlan(result.data), sources: { ...(result.data.sources?.dis && { dis: result.data.sources.dis }) } };
 }
 
 /** Largest plan file read, bytes (a plan of hundreds of vignettes is tens of kilobytes). */
@@ -252,6 +273,11 @@ export const MAX_PLAN_BYTES = 4 * 1024 * 1024;
 
 /** Read and parse a plan file; an unreadable file is InputError 'PLAN_UNREADABLE'. */
 export async function loadPlan(path: string): Promise<EventPlan> {
+  return (await loadPlanWithSources(path)).plan;
+}
+
+/** `loadPlan`, also giving the plan's live sources. */
+export async function loadPlanWithSources(path: string): Promise<{ plan: EventPlan; sources: PlanSources }> {
   let text: string;
   try {
     const size = (await stat(path)).size;
@@ -264,5 +290,5 @@ export async function loadPlan(path: string): Promise<EventPlan> {
     const reason = e instanceof Error ? e.message : String(e);
     throw new InputError('PLAN_UNREADABLE', { file: path, reason: `cannot read plan: ${reason}` });
   }
-  return parsePlan(text, path);
+  return parsePlanWithSources(text, path);
 }

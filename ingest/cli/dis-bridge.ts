@@ -3,8 +3,8 @@
  * service as runs, until SIGINT/SIGTERM; then close the open runs and print the counters.
  */
 import type { EventPlan } from '../plan.js';
-import { BridgeError, formatStats, isMulticast, parseListen, startDisBridge } from '../dis/bridge.js';
-import { FeedClientError } from '../dis/feed-client.js';
+import { BridgeError, closedLine, formatStats, isMulticast, parseListen, startDisSource } from '../dis/bridge.js';
+import { FeedClient, FeedClientError } from '../dis/feed-client.js';
 import { loadDisMapping, resolveMapping } from '../dis/mapping.js';
 
 /** A bad option value of the command (exit code 2 with the usage). */
@@ -35,10 +35,14 @@ export async function disBridgeCommand(o: DisBridgeCommand): Promise<number> {
   }
   if (o.group !== undefined && !isMulticast(o.group)) throw new DisBridgeUsageError(`--group must be a multicast address, got ${JSON.stringify(o.group)}`);
   const entries = resolveMapping(await loadDisMapping(o.mapPath), o.plan, o.mapPath);
+  const say = (line: string) => process.stderr.write(`${line}\n`);
+  const feed = new FeedClient({ url: o.url, token: o.token, channels: o.plan.channels.map((c) => c.name), onEvent: say, onClosed: (v, t, already) => say(closedLine(v, t, already)) });
   let bridge;
   try {
-    bridge = await startDisBridge({ ...listen, group: o.group, url: o.url, token: o.token, plan: o.plan, entries, silence, onEvent: (line) => process.stderr.write(`${line}\n`) });
+    await feed.connect();
+    bridge = await startDisSource({ ...listen, group: o.group, output: feed, plan: o.plan, entries, silence, onEvent: say });
   } catch (e) {
+    feed.stop();
     if (e instanceof BridgeError || e instanceof FeedClientError) throw new DisBridgeError(e.message);
     throw e;
   }
@@ -48,6 +52,6 @@ export async function disBridgeCommand(o: DisBridgeCommand): Promise<number> {
   });
   process.stderr.write('stopping: closing the open runs\n');
   await bridge.close();
-  process.stderr.write(`${formatStats(bridge.stats)}\n`);
+  process.stderr.write(`${formatStats(bridge.counters())}\n`);
   return 0;
 }

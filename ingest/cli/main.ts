@@ -31,7 +31,8 @@ import { replay, ReplayError } from '../service/replay.js';
 import { DisMappingError } from '../dis/mapping.js';
 import { disBridgeCommand, DisBridgeError, DisBridgeUsageError } from './dis-bridge.js';
 import { ServeError, startServer } from '../service/server.js';
-import { loadPlan } from '../plan.js';
+import { loadPlan, loadPlanWithSources } from '../plan.js';
+import { serveDisConfig, startServeDis, stopServeDis } from './serve-dis.js';
 import { readTracks } from '../tracks-reader.js';
 import { terminalProgress } from './progress.js';
 
@@ -58,9 +59,11 @@ commands:
       print the JSON Schema of an event plan, the assessment document, the debrief's
       results.json or the feed protocol
   serve [--plan FILE] [--baseline FILE] [--journal FILE] [--host H] [--port N] [--token-file F]
-        [--allow-origin URL]... [--durability normal|full]
+        [--allow-origin URL]... [--durability normal|full] [--dis udp://HOST:PORT [--dis-map FILE]]
       the live service (default 127.0.0.1:7340, journal .plumbline/journal.sqlite); binding to
-      another address needs a producer token (PLUMBLINE_TOKEN or --token-file)
+      another address needs a producer token (PLUMBLINE_TOKEN or --token-file); --dis (or the
+      plan's sources.dis block) also receives DIS Entity State PDUs in the service (unicast,
+      broadcast or a multicast group), the entity mapping from the plan or --dis-map
   replay --live FILE [--baseline FILE] [--plan FILE] [--url ws://HOST:PORT/feed] [--speed X]
          [--overlap N] [--token-file F]
       send recorded runs to a running service at their recorded pace times --speed
@@ -220,12 +223,16 @@ async function serve(args: string[]): Promise<number> {
     'token-file': { type: 'string' },
     'allow-origin': { type: 'string', multiple: true },
     durability: { type: 'string' },
+    dis: { type: 'string' },
+    'dis-map': { type: 'string' },
   });
   const durability = values.durability;
   if (durability !== undefined && durability !== 'normal' && durability !== 'full') throw new UsageError('--durability must be "normal" or "full"');
+  const planFile = typeof values.plan === 'string' ? await loadPlanWithSources(values.plan) : undefined;
+  const dis = await serveDisConfig({ dis: typeof values.dis === 'string' ? values.dis : undefined, map: typeof values['dis-map'] === 'string' ? values['dis-map'] : undefined, sources: planFile?.sources ?? {} });
   const progress = terminalProgress();
   const server = await startServer({
-    planPath: typeof values.plan === 'string' ? values.plan : undefined,
+    plan: planFile?.plan,
     baselinePath: typeof values.baseline === 'string' ? values.baseline : undefined,
     journalPath: typeof values.journal === 'string' ? values.journal : join('.plumbline', 'journal.sqlite'),
     host: typeof values.host === 'string' ? values.host : '127.0.0.1',
@@ -238,12 +245,21 @@ async function serve(args: string[]): Promise<number> {
     onProgress: (label, d, t) => progress.update(label, d, t),
   });
   progress.done();
+  const say = (line: string) => process.stderr.write(`${line}\n`);
+  let disSource;
+  try {
+    disSource = dis ? await startServeDis(server, planFile?.plan, dis, say) : undefined;
+  } catch (e) {
+    await server.close();
+    throw e;
+  }
   process.stderr.write(`plumbline is serving ${server.url}  (feed: ws://${server.url.slice(7)}/feed)\n`);
   await new Promise<void>((res) => {
     const stop = () => res();
     process.once('SIGINT', stop);
     process.once('SIGTERM', stop);
   });
+  if (disSource) await stopServeDis(disSource, say);
   process.stderr.write('stopping: committing the journal\n');
   await server.close();
   return EXIT_OK;

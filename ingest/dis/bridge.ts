@@ -3,27 +3,37 @@
  *
  *   UDP datagram → splitDatagram (pdu.ts) → EntityRouter: mapping lookup (exercise, site,
  *   application, entity) → run state → TrackClock (time.ts) → LocalFrame (geodesy.ts) → plan
- *   channels → FeedClient (feed protocol v1) → the service
+ *   channels → RunOutput (run-output.ts) → the service
+ *
+ * The output is either the WebSocket feed client (`plumbline dis-bridge`, a separate process) or
+ * `RunningServer.submit` (`plumbline serve --dis`, in the service process); this file does not
+ * know which.
  *
  * A run opens at its entity's first Entity State PDU and closes after `silence` seconds of receive
- * time without one, or at the first PDU past the vignette horizon (later PDUs of that entity are
+ * time without one (time the process was stalled not counted: StallFreeClock), or at the first
+ * PDU past the vignette horizon (later PDUs of that entity are
  * then ignored until it has been silent for `silence` seconds). An entity that reappears after its
  * run closed starts the next run, `<track>-r2`, `-r3`, ... Bad PDUs are counted by code and never
  * stop the bridge; so are PDUs of other types, unmapped entities and stamps that do not move forward.
+ * Bad PDUs and unmapped entities are also logged, rate-limited with counts (counted-log.ts).
  */
 import { createSocket, type Socket } from 'node:dgram';
 import { isIP } from 'node:net';
 import type { EventPlan } from '../plan.js';
-import { FeedClient } from './feed-client.js';
+import { COUNTED_LOG_INTERVAL_MS, CountedLog } from './counted-log.js';
+import { BridgeError, isMulticast } from './listen.js';
 import { LocalFrame } from './geodesy.js';
-import { type ResolvedEntity } from './mapping.js';
+import { DEFAULT_SILENCE, type ResolvedEntity } from './mapping.js';
 import { splitDatagram, type EntityStatePdu } from './pdu.js';
+import type { RunOutput } from './run-output.js';
+
+export { BridgeError, isMulticast, listenTarget, parseListen } from './listen.js';
 import { TrackClock } from './time.js';
 
 /** Limits and defaults of the bridge. */
 export const BRIDGE_DEFAULTS = {
   /** Seconds without a PDU after which a run is closed. */
-  silence: 10,
+  silence: DEFAULT_SILENCE,
   /** How often runs are checked for silence, ms (at most; a quarter of the silence when shorter). */
   silenceCheckMs: 250,
   /** How often buffered points are sent, ms. */
@@ -89,6 +99,8 @@ export class EntityRouter {
     entries: readonly ResolvedEntity[],
     private readonly sink: RunSink,
     private readonly silenceMs: number = BRIDGE_DEFAULTS.silence * 1000,
+    /** Told of each bad PDU and unmapped entity (code, and a thunk for the detail line). */
+    private readonly notice: (code: string, detail: () => string) => void = () => undefined,
   ) {
     const horizons = new Map(plan.vignettes.map((v) => [v.id, v.horizon]));
     for (const entry of entries) {
@@ -109,8 +121,11 @@ export class EntityRouter {
   datagram(bytes: Uint8Array, nowMs: number): void {
     this.stats.datagrams++;
     for (const item of splitDatagram(bytes)) {
-      if (item.kind === 'error') this.stats.bad[item.error.code] = (this.stats.bad[item.error.code] ?? 0) + 1;
-      else if (item.kind === 'other') this.stats.otherPdus++;
+      if (item.kind === 'error') {
+        const error = item.error;
+        this.stats.bad[error.code] = (this.stats.bad[error.code] ?? 0) + 1;
+        this.notice(error.code, () => error.message);
+      } else if (item.kind === 'other') this.stats.otherPdus++;
       else this.entityState(item.pdu, nowMs);
     }
   }
@@ -121,6 +136,7 @@ export class EntityRouter {
     const s = this.lookup(pdu);
     if (!s) {
       this.stats.unmapped++;
+      this.notice('UNMAPPED_ENTITY', () => `exercise ${pdu.exercise}, entity ${pdu.entityId.site}:${pdu.entityId.application}:${pdu.entityId.entity} is not in the mapping`);
       return;
     }
     this.silent(nowMs, s);
@@ -196,7 +212,7 @@ function convert(s: EntityState, x: number, y: number, z: number): number[] {
   return q.map((name) => rb[name]);
 }
 
-export interface DisBridgeOptions {
+export interface DisSourceOptions {
   /**
    * Address to bind: a unicast address of this host, or 0.0.0.0 / :: for any (needed for broadcast);
    * with `group`, the interface address to join the group on (0.0.0.0 / ::: the system's choice).
@@ -206,91 +222,98 @@ export interface DisBridgeOptions {
   readonly port: number;
   /** Multicast group to join (IPv4 224.0.0.0/4 or IPv6 ff00::/8). */
   readonly group?: string;
-  /** The service's feed, ws://HOST:PORT/feed. */
-  readonly url: string;
-  readonly token?: string;
+  /** Where the runs go (connected already). */
+  readonly output: RunOutput;
   readonly plan: EventPlan;
   readonly entries: readonly ResolvedEntity[];
   /** Seconds without a PDU after which a run closes. */
   readonly silence?: number;
   readonly onEvent?: (line: string) => void;
+  /** Interval of the rate-limited lines about bad PDUs and unmapped entities, ms. */
+  readonly noticeIntervalMs?: number;
 }
 
-export interface RunningBridge {
+/** Counters of a running source: what it received, and what the service refused, by code. */
+export interface DisSourceCounters extends BridgeStats {
+  /** The service's refusals (and BUFFER_FULL of the output), by code. */
+  readonly refused: Record<string, number>;
+}
+
+export interface RunningDisSource {
   /** The bound UDP address and port. */
   readonly address: { address: string; port: number };
   readonly stats: BridgeStats;
-  readonly feed: FeedClient;
-  /** Close open runs, wait for the service to confirm (bounded), and release the socket. */
+  readonly output: RunOutput;
+  /** A copy of the counters now. */
+  counters(): DisSourceCounters;
+  /** Close open runs, wait for the service to confirm (bounded), and release the socket and the output. */
   close(): Promise<void>;
 }
 
-export class BridgeError extends Error {
-  constructor(readonly code: 'BAD_LISTEN' | 'BAD_GROUP' | 'BIND_FAILED', message: string) {
-    super(message);
-    this.name = 'BridgeError';
+/** The output's log line when the service confirms a close (for its `onClosed`). */
+export function closedLine(vignette: string, track: string, alreadyClosed: boolean): string {
+  return alreadyClosed ? `run ${vignette}/${track} was already closed in the service; its points are not sent` : `run ${vignette}/${track} closed`;
+}
+
+/**
+ * `performance.now()` less the time the event loop was stalled: a periodic tick that comes more
+ * than one period late counts its lateness as stalled time.
+ */
+export class StallFreeClock {
+  private stalled = 0;
+  private last: number;
+
+  constructor(
+    private readonly periodMs: number,
+    private readonly wall: () => number = () => performance.now(),
+  ) {
+    this.last = wall();
+  }
+
+  /** Called every `periodMs`. */
+  tick(): void {
+    const t = this.wall();
+    const late = t - this.last - this.periodMs;
+    if (late > this.periodMs) this.stalled += late;
+    this.last = t;
+  }
+
+  now(): number {
+    return this.wall() - this.stalled;
   }
 }
 
-/** Parse `udp://HOST:PORT` (IPv6 hosts in brackets). */
-export function parseListen(url: string): { host: string; port: number } {
-  let u: URL;
-  try {
-    u = new URL(url);
-  } catch {
-    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
-  }
-  const port = Number(u.port);
-  if (u.protocol !== 'udp:' || u.hostname === '' || u.port === '' || !Number.isInteger(port) || port < 0 || port > 65535) {
-    throw new BridgeError('BAD_LISTEN', `--listen must look like udp://HOST:PORT, got ${JSON.stringify(url)}`);
-  }
-  return { host: u.hostname.replace(/^\[|\]$/g, ''), port };
-}
-
-/** An IPv4 224.0.0.0/4 or IPv6 ff00::/8 address. */
-export function isMulticast(group: string): boolean {
-  if (isIP(group) === 4) {
-    const first = Number(group.split('.')[0]);
-    return first >= 224 && first <= 239;
-  }
-  return isIP(group) === 6 && /^ff/i.test(group);
-}
-
-/** Start the bridge: bind the UDP socket (joining the group), connect to the feed, route PDUs. */
-export async function startDisBridge(options: DisBridgeOptions): Promise<RunningBridge> {
+/** Start the source: bind the UDP socket (joining the group), route PDUs to the output. */
+export async function startDisSource(options: DisSourceOptions): Promise<RunningDisSource> {
   const say = options.onEvent ?? (() => undefined);
   const silence = options.silence ?? BRIDGE_DEFAULTS.silence;
   if (options.group !== undefined && !isMulticast(options.group)) throw new BridgeError('BAD_GROUP', `--group must be a multicast address, got ${JSON.stringify(options.group)}`);
-  const family = isIP(options.host) === 6 ? 'udp6' : 'udp4';
-  const feed = new FeedClient({
-    url: options.url,
-    token: options.token,
-    channels: options.plan.channels.map((c) => c.name),
-    onEvent: say,
-    onClosed: (v, t, already) => say(already ? `run ${v}/${t} was already closed in the service; its points are not sent` : `run ${v}/${t} closed`),
-  });
-  await feed.connect();
+  const family = isIP(options.group ?? options.host) === 6 ? 'udp6' : 'udp4';
+  const output = options.output;
+  const notices = new CountedLog(say, 'DIS', options.noticeIntervalMs);
   const router = new EntityRouter(options.plan, options.entries, {
     open: (v, t, source) => {
       say(`run ${v}/${t} opened`);
-      feed.open(v, t, source);
+      output.open(v, t, source);
     },
     point: (v, t, time, values) => {
-      feed.add(v, t, time, values);
+      output.add(v, t, time, values);
     },
     close: (v, t, why) => {
       say(`run ${v}/${t} closing (${why})`);
-      feed.close(v, t);
+      output.close(v, t);
     },
-  }, silence * 1000);
+  }, silence * 1000, (code, detail) => notices.note(code, detail));
 
+  const checkMs = Math.max(10, Math.min(BRIDGE_DEFAULTS.silenceCheckMs, (silence * 1000) / 4));
+  const clock = new StallFreeClock(checkMs);
   const socket: Socket = createSocket({ type: family, reuseAddr: true });
   socket.on('message', (msg) => {
     try {
-      router.datagram(msg.length > BRIDGE_DEFAULTS.maxDatagram ? msg.subarray(0, BRIDGE_DEFAULTS.maxDatagram) : msg, performance.now());
+      router.datagram(msg.length > BRIDGE_DEFAULTS.maxDatagram ? msg.subarray(0, BRIDGE_DEFAULTS.maxDatagram) : msg, clock.now());
     } catch (e) {
       router.stats.bad.INTERNAL = (router.stats.bad.INTERNAL ?? 0) + 1;
-      say(`bridge: a datagram failed: ${e instanceof Error ? e.message : String(e)}`);
+      notices.note('INTERNAL', () => `a datagram failed: ${e instanceof Error ? e.message : String(e)}`);
     }
   });
   socket.on('error', (e) => say(`udp: ${e.message}`));
@@ -311,36 +334,52 @@ export async function startDisBridge(options: DisBridgeOptions): Promise<Running
       socket.setBroadcast(true);
     }
   } catch (e) {
-    feed.stop();
     socket.close();
     throw new BridgeError('BIND_FAILED', `cannot listen on udp://${options.host}:${options.port}${options.group ? ` (group ${options.group})` : ''}: ${e instanceof Error ? e.message : String(e)}`);
   }
-  const flush = setInterval(() => feed.pump(), BRIDGE_DEFAULTS.flushMs);
-  const silenceTimer = setInterval(() => router.silent(performance.now()), Math.max(10, Math.min(BRIDGE_DEFAULTS.silenceCheckMs, (silence * 1000) / 4)));
+  const flush = setInterval(() => output.pump(), BRIDGE_DEFAULTS.flushMs);
+  // Silence is measured on a clock that stops while the process is stalled (a long computation or
+  // a collection in the service): a datagram that waited in the socket buffer through a stall is
+  // not taken for a silence. The check runs after the loop's I/O phase (setImmediate), so the
+  // datagrams that arrived during a stall are routed before it.
+  const silenceTimer = setInterval(() => {
+    clock.tick();
+    setImmediate(() => router.silent(clock.now()));
+  }, checkMs);
+  const noticeTimer = setInterval(() => notices.flush(), options.noticeIntervalMs ?? COUNTED_LOG_INTERVAL_MS);
   const addr = socket.address();
   say(`listening for DIS Entity State PDUs on udp://${addr.address}:${addr.port}${options.group ? ` (group ${options.group})` : ''}`);
+  let closing: Promise<void> | undefined;
   return {
     address: { address: addr.address, port: addr.port },
     stats: router.stats,
-    feed,
-    close: async () => {
-      clearInterval(flush);
-      clearInterval(silenceTimer);
-      await new Promise<void>((res) => socket.close(() => res()));
-      router.closeAll();
-      await feed.drain();
-      feed.stop();
+    output,
+    counters: () => ({ ...router.stats, bad: { ...router.stats.bad }, refused: Object.fromEntries(output.errors) }),
+    close: () => {
+      closing ??= (async () => {
+        clearInterval(flush);
+        clearInterval(silenceTimer);
+        clearInterval(noticeTimer);
+        await new Promise<void>((res) => socket.close(() => res()));
+        notices.flush();
+        router.closeAll();
+        await output.drain();
+        output.stop();
+      })();
+      return closing;
     },
   };
 }
 
 /** One line per counter that is not zero, for the end-of-run summary. */
-export function formatStats(s: BridgeStats): string {
+export function formatStats(s: BridgeStats & { refused?: Record<string, number> }): string {
   const bad = Object.entries(s.bad).map(([code, n]) => `${code} ${n}`);
+  const refused = Object.entries(s.refused ?? {}).map(([code, n]) => `${code} ${n}`);
   return [
     `${s.datagrams} datagrams, ${s.entityStatePdus} Entity State PDUs, ${s.otherPdus} other PDUs`,
     `${s.points} points in ${s.runsOpened} runs (${s.runsClosed} closed)`,
     `ignored: ${s.unmapped} unmapped, ${s.notAfter} not after the previous stamp, ${s.timeKindChanged} time kind changed, ${s.pastHorizon} past the horizon`,
     `bad PDUs: ${bad.length === 0 ? 'none' : bad.join(', ')}`,
+    ...(s.refused ? [`refused by the service: ${refused.length === 0 ? 'none' : refused.join(', ')}`] : []),
   ].join('\n');
 }

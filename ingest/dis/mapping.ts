@@ -18,10 +18,12 @@
  * `exercise` may be left out to accept the entity from any exercise.
  */
 import { readFile } from 'node:fs/promises';
+import { isIP } from 'node:net';
 import { parse as parseYaml } from 'yaml';
 import { z } from 'zod';
 import type { EventPlan } from '../plan.js';
 import type { Geodetic } from './geodesy.js';
+import { isMulticast, parseListen } from './listen.js';
 
 export const QUANTITIES = {
   'range-bearing': ['range', 'bearing', 'elevation'],
@@ -51,21 +53,70 @@ const entitySchema = z.strictObject({
   conversion: z.enum(['range-bearing', 'enu']).default('range-bearing'),
 });
 
-export const disMappingSchema = z
-  .strictObject({
-    sites: z.record(z.string().min(1), siteSchema),
-    channels: z.record(z.string(), z.enum(['range', 'bearing', 'elevation', 'east', 'north', 'up'])).optional(),
-    entities: z.array(entitySchema).min(1),
-  })
-  .superRefine((m, ctx) => {
-    const seen = new Set<string>();
-    m.entities.forEach((e, i) => {
-      if (!(e.sensor in m.sites)) ctx.addIssue({ code: 'custom', path: ['entities', i, 'sensor'], message: `unknown site ${JSON.stringify(e.sensor)}`, input: e.sensor });
-      const k = `${e.exercise ?? '*'}:${e.site}:${e.application}:${e.entity}`;
-      if (seen.has(k)) ctx.addIssue({ code: 'custom', path: ['entities', i], message: `entity ${e.site}:${e.application}:${e.entity} is mapped twice`, input: k });
-      seen.add(k);
-    });
+const mappingShape = {
+  sites: z.record(z.string().min(1), siteSchema).describe('sensor sites by name'),
+  channels: z
+    .record(z.string(), z.enum(['range', 'bearing', 'elevation', 'east', 'north', 'up']))
+    .optional()
+    .describe('the quantity behind each plan channel; absent: the quantity of the same name'),
+  entities: z.array(entitySchema).min(1).describe('the DIS entities that are runs'),
+};
+
+/** Every entity's sensor is a site; no entity is mapped twice. */
+function checkEntities(m: { sites: Record<string, unknown>; entities: ReadonlyArray<z.output<typeof entitySchema>> }, ctx: z.core.$RefinementCtx<unknown>): void {
+  const seen = new Set<string>();
+  m.entities.forEach((e, i) => {
+    if (!(e.sensor in m.sites)) ctx.addIssue({ code: 'custom', path: ['entities', i, 'sensor'], message: `unknown site ${JSON.stringify(e.sensor)}`, input: e.sensor });
+    const k = `${e.exercise ?? '*'}:${e.site}:${e.application}:${e.entity}`;
+    if (seen.has(k)) ctx.addIssue({ code: 'custom', path: ['entities', i], message: `entity ${e.site}:${e.application}:${e.entity} is mapped twice`, input: k });
+    seen.add(k);
   });
+}
+
+export const disMappingSchema = z.strictObject(mappingShape).superRefine(checkEntities);
+
+/** Default seconds without a PDU after which a run closes (`BRIDGE_DEFAULTS.silence`). */
+export const DEFAULT_SILENCE = 10;
+
+function listenProblem(url: string): string | undefined {
+  try {
+    parseListen(url, 'listen');
+    return undefined;
+  } catch (e) {
+    return e instanceof Error ? e.message : String(e);
+  }
+}
+
+/**
+ * The plan's `sources.dis` block: where `plumbline serve` listens for DIS Entity State PDUs, and the
+ * mapping (as in the mapping file) with the silence that closes a run.
+ */
+export const disSourceSchema = z
+  .strictObject({
+    listen: z
+      .string()
+      .superRefine((url, ctx) => {
+        const problem = listenProblem(url);
+        if (problem) ctx.addIssue({ code: 'custom', message: problem, input: url });
+      })
+      .describe('udp://HOST:PORT: a unicast address of this host, 0.0.0.0 or [::] for any (broadcast), or a multicast group to join; `serve --dis` overrides it'),
+    interface: z
+      .string()
+      .refine((a) => isIP(a) !== 0, { error: 'must be an IP address of this host' })
+      .optional()
+      .describe('with a multicast group: the address of the interface to join it on; absent: the system\'s choice'),
+    silence: z.number().gt(0, { error: 'must be > 0 seconds' }).default(DEFAULT_SILENCE).describe('seconds without a PDU after which a run closes'),
+    ...mappingShape,
+  })
+  .superRefine((d, ctx) => {
+    checkEntities(d, ctx);
+    if (d.interface !== undefined && listenProblem(d.listen) === undefined && !isMulticast(parseListen(d.listen).host)) {
+      ctx.addIssue({ code: 'custom', path: ['interface'], message: 'goes with a multicast group address in "listen"', input: d.interface });
+    }
+  });
+
+export type DisSourceDocument = z.input<typeof disSourceSchema>;
+export type DisSource = z.output<typeof disSourceSchema>;
 
 export type DisMappingDocument = z.input<typeof disMappingSchema>;
 export type DisMapping = z.output<typeof disMappingSchema>;
@@ -89,25 +140,40 @@ export interface ResolvedEntity extends DisMappedEntity {
   readonly quantities: readonly Quantity[];
 }
 
+/** A problem of a mapping against the plan: where (path in the mapping) and what. */
+export interface MappingPlanIssue {
+  readonly path: Array<string | number>;
+  readonly message: string;
+}
+
 /**
- * Check a mapping against the plan: every vignette exists, and every plan channel maps to a
- * quantity that the entry's conversion gives.
+ * Check a mapping against the plan's channels and vignettes: every vignette exists, and every plan
+ * channel maps to a quantity that the entry's conversion gives. Also returns, per entry, the
+ * quantity behind each plan channel.
  */
-export function resolveMapping(mapping: DisMapping, plan: EventPlan, file = 'mapping'): ResolvedEntity[] {
-  const issues: string[] = [];
+export function mappingPlanIssues(
+  mapping: Pick<DisMapping, 'channels' | 'entities'>,
+  plan: { readonly channels: ReadonlyArray<{ readonly name: string }>; readonly vignettes: ReadonlyArray<{ readonly id: string }> },
+): { issues: MappingPlanIssue[]; quantities: Quantity[][] } {
+  const issues: MappingPlanIssue[] = [];
   const vignettes = new Set(plan.vignettes.map((v) => v.id));
-  const out = mapping.entities.map((e, i) => {
-    if (!vignettes.has(e.vignette)) issues.push(`entities.${i}.vignette: ${JSON.stringify(e.vignette)} is not a vignette of the plan`);
+  const quantities = mapping.entities.map((e, i) => {
+    if (!vignettes.has(e.vignette)) issues.push({ path: ['entities', i, 'vignette'], message: `${JSON.stringify(e.vignette)} is not a vignette of the plan` });
     const offered: readonly string[] = QUANTITIES[e.conversion];
-    const quantities = plan.channels.map((c) => {
+    return plan.channels.map((c) => {
       const q = mapping.channels?.[c.name] ?? c.name;
-      if (!offered.includes(q)) issues.push(`entities.${i}: plan channel ${JSON.stringify(c.name)} needs quantity ${JSON.stringify(q)}, which conversion "${e.conversion}" does not give (${offered.join(', ')})`);
+      if (!offered.includes(q)) issues.push({ path: ['entities', i], message: `plan channel ${JSON.stringify(c.name)} needs quantity ${JSON.stringify(q)}, which conversion "${e.conversion}" does not give (${offered.join(', ')})` });
       return q as Quantity;
     });
-    return { ...e, siteLocation: mapping.sites[e.sensor], quantities };
   });
-  if (issues.length > 0) throw new DisMappingError('MAPPING_PLAN', `${file}: the mapping does not fit the plan`, issues);
-  return out;
+  return { issues, quantities };
+}
+
+/** Check a mapping against the plan (mappingPlanIssues) and resolve each entry's site and quantities. */
+export function resolveMapping(mapping: Pick<DisMapping, 'sites' | 'channels' | 'entities'>, plan: EventPlan, file = 'mapping'): ResolvedEntity[] {
+  const { issues, quantities } = mappingPlanIssues(mapping, plan);
+  if (issues.length > 0) throw new DisMappingError('MAPPING_PLAN', `${file}: the mapping does not fit the plan`, issues.map((i) => `${i.path.join('.')}: ${i.message}`));
+  return mapping.entities.map((e, i) => ({ ...e, siteLocation: mapping.sites[e.sensor], quantities: quantities[i] }));
 }
 
 export function parseDisMapping(text: string, file: string): DisMapping {

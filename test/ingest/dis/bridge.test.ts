@@ -11,7 +11,8 @@ import { createSocket } from 'node:dgram';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { EntityRouter, parseListen, startDisBridge, type RunSink } from '../../../ingest/dis/bridge.js';
+import { closedLine, EntityRouter, parseListen, startDisSource, type DisSourceOptions, type RunSink } from '../../../ingest/dis/bridge.js';
+import { FeedClient } from '../../../ingest/dis/feed-client.js';
 import { geodeticToEcef } from '../../../ingest/dis/geodesy.js';
 import { DisMappingError, parseDisMapping, resolveMapping, type DisMappingDocument } from '../../../ingest/dis/mapping.js';
 import { decodeEntityStatePdu } from '../../../ingest/dis/pdu.js';
@@ -174,6 +175,14 @@ describe('router (no I/O)', () => {
     expect(router.stats).toMatchObject({ datagrams: 5, unmapped: 2, notAfter: 1, points: 1, bad: { PDU_SHORT_HEADER: 1 } });
   });
 });
+
+/** The bridge as `plumbline dis-bridge` wires it: the WebSocket feed client as the output. */
+async function startDisBridge(o: Omit<DisSourceOptions, 'output'> & { url: string }) {
+  const feed = new FeedClient({ url: o.url, channels: o.plan.channels.map((c) => c.name), onEvent: o.onEvent, onClosed: (v, t, already) => o.onEvent?.(closedLine(v, t, already)) });
+  await feed.connect();
+  const source = await startDisSource({ ...o, output: feed });
+  return { ...source, feed };
+}
 
 describe('end to end over loopback', () => {
   it('PDUs of an entity on a known path reach the service as a run with the right range and bearing, closed after the silence', async () => {

@@ -1,0 +1,44 @@
+/**
+ * The DIS source inside the service process (`plumbline serve --dis`, or the plan's `sources.dis`):
+ * the UDP socket and router of bridge.ts with `SubmitOutput` as the output, so each run's messages
+ * go through `RunningServer.submit` (batch → validate → journal → acknowledge) as a `/feed`
+ * producer's would, without a socket in between.
+ */
+import type { EventPlan } from '../plan.js';
+import { closedLine, startDisSource, type RunningDisSource } from './bridge.js';
+import { listenTarget } from './listen.js';
+import { resolveMapping, type DisMapping } from './mapping.js';
+import { SubmitOutput, type Submit } from './submit-output.js';
+
+/** What the source needs: where to listen, the mapping, the silence (the plan's `sources.dis` block). */
+export interface ServiceDisConfig extends Pick<DisMapping, 'sites' | 'channels' | 'entities'> {
+  /** udp://HOST:PORT; a multicast HOST is joined as a group. */
+  readonly listen: string;
+  /** With a multicast group: the interface address to join it on. */
+  readonly interface?: string;
+  /** Seconds without a PDU after which a run closes. */
+  readonly silence: number;
+}
+
+export interface ServiceDisOptions {
+  /** The running service (its `submit`). */
+  readonly server: { submit: Submit };
+  readonly plan: EventPlan;
+  readonly config: ServiceDisConfig;
+  /** Where the mapping came from, for error messages. */
+  readonly origin?: string;
+  readonly onEvent?: (line: string) => void;
+  readonly noticeIntervalMs?: number;
+}
+
+/** Check the mapping against the plan, bind the socket and start routing PDUs into the service. */
+export async function startServiceDisSource(o: ServiceDisOptions): Promise<RunningDisSource> {
+  const target = listenTarget(o.config.listen, o.config.interface, 'listen');
+  const entries = resolveMapping(o.config, o.plan, o.origin ?? 'sources.dis');
+  const output = new SubmitOutput(o.server.submit, {
+    channels: o.plan.channels.map((c) => c.name),
+    onEvent: o.onEvent,
+    onClosed: (v, t, already) => o.onEvent?.(closedLine(v, t, already)),
+  });
+  return startDisSource({ ...target, output, plan: o.plan, entries, silence: o.config.silence, onEvent: o.onEvent, noticeIntervalMs: o.noticeIntervalMs });
+}
