@@ -18,7 +18,7 @@
  *
  * Events: `change` (read `store.view`).
  */
-import type { EventView, LogEntryView, RunDetail, RunView, VignetteView, WatchMessage } from '../../ingest/service/view.js';
+import type { EventView, LogEntryView, RunDetail, RunView, VignetteView, WatchMessage, WatchUpdate } from '../../ingest/service/view.js';
 import type { ConnectionState, ViewState } from './model.js';
 import { shareUnchanged } from './share.js';
 
@@ -284,12 +284,46 @@ export class EventStore extends EventTarget {
       case 'snapshot':
         this.applySnapshot((msg as Extract<WatchMessage, { type: 'snapshot' }>).state);
         break;
+      case 'updates':
+        // The changes of one short window on the server, at most one per run, vignette or entry.
+        for (const u of (msg as Extract<WatchMessage, { type: 'updates' }>).updates) this.applyUpdate(u);
+        break;
+      case 'noted': {
+        const r = msg as Extract<Reply, { type: 'noted' }>;
+        this.settleNote(r.id, undefined, r.entry);
+        return;
+      }
+      case 'error': {
+        const r = msg as Extract<Reply, { type: 'error' }>;
+        if (r.id?.startsWith(PROBE_PREFIX)) return; // the answer to a liveness probe
+        if (r.id) this.settleNote(r.id, new NoteError(r.code, r.reason));
+        return;
+      }
+      default:
+        if (!this.applyUpdate(msg as WatchUpdate)) return;
+        break;
+    }
+    this.schedule();
+  }
+
+  /** Apply one delta; false for a type this dashboard does not know (a newer server): ignored. */
+  private applyUpdate(msg: WatchUpdate): boolean {
+    switch (msg.type) {
       case 'run': {
         const run = (msg as Extract<WatchMessage, { type: 'run' }>).run;
         this.runs.set(run.key, run);
         this.dirty.runs = true;
         if (run.key === this.selected) this.wantDetail();
         this.autoSelect();
+        break;
+      }
+      case 'progress': {
+        // New points only: the run's count and latest time (a run not seen yet waits for its 'run').
+        const run = this.runs.get(msg.key);
+        if (!run) return true;
+        this.runs.set(msg.key, { ...run, points: msg.points, lastT: msg.lastT });
+        this.dirty.runs = true;
+        if (msg.key === this.selected) this.wantDetail();
         break;
       }
       case 'vignette': {
@@ -320,21 +354,10 @@ export class EventStore extends EventTarget {
         }
         break;
       }
-      case 'noted': {
-        const r = msg as Extract<Reply, { type: 'noted' }>;
-        this.settleNote(r.id, undefined, r.entry);
-        return;
-      }
-      case 'error': {
-        const r = msg as Extract<Reply, { type: 'error' }>;
-        if (r.id?.startsWith(PROBE_PREFIX)) return; // the answer to a liveness probe
-        if (r.id) this.settleNote(r.id, new NoteError(r.code, r.reason));
-        return;
-      }
       default:
-        return; // a message type this dashboard does not know (a newer server): ignored
+        return false;
     }
-    this.schedule();
+    return true;
   }
 
   private settleNote(id: string, error: NoteError | undefined, entry?: number): void {

@@ -16,12 +16,13 @@ import type { ChannelEnvelope } from '../../engine/envelope.js';
 import { EVENT_LABEL, type ModelSummary } from '../../engine/event.js';
 import type { RawTrack } from '../../engine/types.js';
 import { unwrapCircular } from '../../engine/unwrap.js';
-import { closeTrack as closeQuality, initialQuality, observePoint, type QualityFlag, type QualityState } from '../../engine/quality.js';
+import { closeTrack as closeQuality, initialQuality, observePoint, type QualityFlag, type QualityPoint, type QualityState } from '../../engine/quality.js';
 import type { EventPlan } from '../plan.js';
 import { assembleReport, CAUTIONS, diagnosisRow, practicalRows, runReport, vignetteVerdicts, type AssessmentReport, type RunReport } from '../report.js';
 import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
 import type { AssessResult, EvidenceResult } from './compute.js';
+import { PointStore, RecentTimes } from './point-store.js';
 import { journalWriteFailure, type Journal, type JournalLogEntry, type JournalPoint } from './journal.js';
 import type { ServiceLimits } from './limits.js';
 import { errorReply, type ClientMessage, type CloseMessage, type ErrorCode, type NoteMessage, type OpenMessage, type PointsMessage, type ServerReply } from './protocol.js';
@@ -31,12 +32,16 @@ export type Role = 'producer' | 'watcher';
 
 export type Change =
   | { readonly kind: 'run'; readonly key: string }
+  /** Only new committed points of a run (its count and latest time changed, nothing else). */
+  | { readonly kind: 'progress'; readonly key: string }
   | { readonly kind: 'vignette'; readonly id: string }
   | { readonly kind: 'combined' }
   | { readonly kind: 'log'; readonly entry: LogEntryView }
   | { readonly kind: 'journal' };
 
+/** A point accepted and waiting for its commit: already in the journal's row shape. */
 interface StagedPoint {
+  readonly trackId: number;
   readonly seq: number;
   readonly t: number;
   readonly values: Float64Array;
@@ -53,9 +58,10 @@ interface TrackState {
   readonly openedAt: number;
   closedAt?: number;
   lastSeq?: number;
-  /** Committed points by sequence number. */
-  readonly points: Map<number, StagedPoint>;
-  readonly times: Set<number>;
+  /** Committed points, in compact columns (./point-store.ts). */
+  readonly points: PointStore;
+  /** Committed times still within the reorder tolerance of the latest (for the duplicate-time check). */
+  readonly times: RecentTimes;
   readonly pending: Map<number, StagedPoint>;
   readonly pendingTimes: Set<number>;
   committedSeq: number;
@@ -335,7 +341,8 @@ export class EventService {
     let duplicates = 0;
     const reject = (seq: number, code: ErrorCode, reason: string) => rejected.push({ seq, code, reason });
     for (const p of msg.points) {
-      const prior = t.points.get(p.seq) ?? t.pending.get(p.seq);
+      const stored = t.points.indexOf(p.seq);
+      const prior = stored >= 0 ? undefined : t.pending.get(p.seq);
       const values = new Float64Array(C);
       let bad: string | undefined;
       if (p.values.length !== C) {
@@ -351,9 +358,10 @@ export class EventService {
         reject(p.seq, 'NOT_FINITE', bad);
         continue;
       }
-      if (prior) {
-        if (prior.t === p.t && prior.values.every((x, i) => x === values[i])) duplicates++;
-        else reject(p.seq, 'DUPLICATE_CONFLICT', `sequence number ${p.seq} was already accepted with other data (t = ${prior.t})`);
+      if (stored >= 0 || prior) {
+        const same = prior ? prior.t === p.t && prior.values.every((x, i) => x === values[i]) : t.points.same(p.seq, p.t, values);
+        if (same) duplicates++;
+        else reject(p.seq, 'DUPLICATE_CONFLICT', `sequence number ${p.seq} was already accepted with other data (t = ${prior ? prior.t : t.points.tAt(stored)})`);
         continue;
       }
       if (p.t > horizon) {
@@ -368,7 +376,7 @@ export class EventService {
         reject(p.seq, 'DUPLICATE_TIME', `another point of ${t.key} has t = ${p.t} s`);
         continue;
       }
-      const sp = { seq: p.seq, t: p.t, values };
+      const sp: StagedPoint = { trackId: t.id, seq: p.seq, t: p.t, values };
       t.pending.set(p.seq, sp);
       t.pendingTimes.add(p.t);
       if (p.t > t.maxT) t.maxT = p.t;
@@ -403,7 +411,7 @@ export class EventService {
     this.closes = [];
     if (batch.length > 0) {
       const all: JournalPoint[] = [];
-      for (const b of batch) for (const p of b.staged) all.push({ trackId: b.track.id, seq: p.seq, t: p.t, values: p.values });
+      for (const b of batch) for (const p of b.staged) all.push(p);
       try {
         this.journal.commitPoints(all);
       } catch (e) {
@@ -413,9 +421,7 @@ export class EventService {
             b.track.pending.delete(p.seq);
             b.track.pendingTimes.delete(p.t);
           }
-          let maxT = 0;
-          for (const p of b.track.points.values()) if (p.t > maxT) maxT = p.t;
-          b.track.maxT = maxT;
+          b.track.maxT = b.track.points.maxT;
           b.reply(
             failure
               ? errorReply('JOURNAL_UNAVAILABLE', `${failure}; these points were not committed: send them again once the journal recovers`, b.msgId)
@@ -443,7 +449,7 @@ export class EventService {
       }
       for (const t of touched) {
         if (t.source === 'live') {
-          this.changes$.next({ kind: 'run', key: t.key });
+          this.changes$.next({ kind: 'progress', key: t.key });
           this.maybeProvisional(t);
         }
       }
@@ -841,17 +847,18 @@ export class EventService {
   private newTrack(id: number, vignette: string, track: string, source: 'live' | 'sim', order: number[], openedAt: number): TrackState {
     return {
       id, key: keyOf(vignette, track), vignette, track, source, order, openedAt,
-      points: new Map(), times: new Set(), pending: new Map(), pendingTimes: new Set(),
+      points: new PointStore(this.plan.channels.length), times: new RecentTimes(this.limits.timeReversalTolerance), pending: new Map(), pendingTimes: new Set(),
       committedSeq: 0, maxT: 0, trail: [], lastProvisionalT: Number.NEGATIVE_INFINITY, flags: [], notes: 0,
       quality: source === 'live' ? initialQuality({ channels: this.plan.channels, gapFactor: this.plan.analysis.gapFactor, reorderTolerance: this.limits.timeReversalTolerance }) : undefined,
     };
   }
 
   /** Feed committed points to the run's quality monitor; `announce` journals and shows new flags. */
-  private observeQuality(t: TrackState, points: readonly StagedPoint[], announce: boolean): void {
+  private observeQuality(t: TrackState, points: ReadonlyArray<{ readonly seq: number; readonly t: number; readonly values: Float64Array }>, announce: boolean): void {
     if (!t.quality) return;
     for (const p of points) {
-      const r = observePoint(t.quality, { seq: p.seq, t: p.t, values: Array.from(p.values) });
+      // The monitor only reads `values` by index (engine/quality.ts): the point's own array serves.
+      const r = observePoint(t.quality, p as unknown as QualityPoint);
       t.quality = r.state;
       if (announce) for (const f of r.flags) this.raiseFlag(t, f);
     }
@@ -869,12 +876,9 @@ export class EventService {
 
   /** The committed points as a track the engine takes: sorted by time, circular channels unwrapped. */
   private rawTrack(t: TrackState, unwrap = true): RawTrack {
-    const pts = [...t.points.values()].sort((a, b) => a.t - b.t);
-    const values = this.plan.channels.map((c, ci) => {
-      const col = Float64Array.from(pts, (p) => p.values[ci]);
-      return unwrap && c.period ? unwrapCircular(col, c.period) : col;
-    });
-    return { vignette: t.vignette, track: t.track, t: Float64Array.from(pts, (p) => p.t), values };
+    const cols = t.points.columns();
+    const values = this.plan.channels.map((c, ci) => (unwrap && c.period ? unwrapCircular(cols.values[ci], c.period) : cols.values[ci]));
+    return { vignette: t.vignette, track: t.track, t: cols.t, values };
   }
 
   private appendLog(kind: LogEntryView['kind'], vignette: string | null, track: string | null, t: number | null, body: { text: string; author?: string }): LogEntryView {

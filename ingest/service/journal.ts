@@ -14,7 +14,9 @@ import { dirname } from 'node:path';
 
 export const JOURNAL_SCHEMA_VERSION = 1;
 /** Rows per multi-row INSERT (4 parameters each, well under SQLite's 32766-parameter limit). */
-const CHUNK = 64;
+const CHUNK = 250;
+/** Rows per multi-row INSERT for the rest of a batch (one-point messages at a high rate). */
+const SMALL_CHUNK = 16;
 const MIN_SQLITE = [3, 51, 3];
 
 export interface JournalTrack {
@@ -81,7 +83,6 @@ export class Journal {
   private readonly resultStmt: Database.Statement;
   private readonly logStmt: Database.Statement;
   private readonly metaStmt: Database.Statement;
-  private readonly insertChunk: Database.Statement;
   private readonly commitMany: (points: readonly JournalPoint[]) => void;
 
   private constructor(db: Database.Database) {
@@ -92,21 +93,23 @@ export class Journal {
     this.resultStmt = db.prepare('INSERT OR REPLACE INTO results(track_id, body) VALUES (?, ?)');
     this.logStmt = db.prepare('INSERT INTO log(at, kind, vignette, track, t, body) VALUES (?, ?, ?, ?, ?, ?)');
     this.metaStmt = db.prepare('INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)');
-    // Multi-row inserts: one statement call per CHUNK rows instead of one per row.
-    this.insertChunk = db.prepare(`INSERT OR IGNORE INTO points(track_id, seq, t, v) VALUES ${Array.from({ length: CHUNK }, () => '(?, ?, ?, ?)').join(', ')}`);
-    const params: unknown[] = new Array(4 * CHUNK);
+    // Multi-row inserts: one statement call per CHUNK rows (then per SMALL_CHUNK) instead of one per row.
+    const multi = (rows: number) => db.prepare(`INSERT OR IGNORE INTO points(track_id, seq, t, v) VALUES ${Array.from({ length: rows }, () => '(?, ?, ?, ?)').join(', ')}`);
+    const chunks: Array<[number, Database.Statement, unknown[]]> = [CHUNK, SMALL_CHUNK].map((rows) => [rows, multi(rows), new Array(4 * rows)]);
     const blob = (p: JournalPoint) => Buffer.from(p.values.buffer, p.values.byteOffset, p.values.byteLength);
     this.commitMany = db.transaction((points: readonly JournalPoint[]) => {
       let i = 0;
-      for (; i + CHUNK <= points.length; i += CHUNK) {
-        for (let k = 0; k < CHUNK; k++) {
-          const p = points[i + k];
-          params[4 * k] = p.trackId;
-          params[4 * k + 1] = p.seq;
-          params[4 * k + 2] = p.t;
-          params[4 * k + 3] = blob(p);
+      for (const [rows, stmt, params] of chunks) {
+        for (; i + rows <= points.length; i += rows) {
+          for (let k = 0; k < rows; k++) {
+            const p = points[i + k];
+            params[4 * k] = p.trackId;
+            params[4 * k + 1] = p.seq;
+            params[4 * k + 2] = p.t;
+            params[4 * k + 3] = blob(p);
+          }
+          stmt.run(params);
         }
-        this.insertChunk.run(params);
       }
       for (; i < points.length; i++) {
         const p = points[i];

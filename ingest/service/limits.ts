@@ -18,11 +18,14 @@ export interface ServiceLimits {
   /** Longest track id, vignette id and note. */
   readonly maxIdLength: number;
   readonly maxNoteLength: number;
-  /** Updates per second per run pushed to dashboards (conflated to the latest). */
-  readonly dashboardUpdatesPerSecond: number;
-  /** A dashboard whose socket buffer passes this is sent only the latest state per key. */
+  /**
+   * Changes are gathered this long (from the first) and sent to every dashboard as one message
+   * holding the latest per key, ms: a point waits at most this for the update that shows it.
+   */
+  readonly dashboardWindowMs: number;
+  /** A dashboard whose socket buffer passes this is skipped and sent a fresh snapshot once it has read its backlog. */
   readonly slowClientBytes: number;
-  /** A dashboard that stays above `slowClientBytes` this long is dropped, ms. */
+  /** A dashboard that stays above `slowClientBytes` this long is dropped, with a note in the log, ms. */
   readonly slowClientGraceMs: number;
   /** Heartbeat interval; a peer that has not answered the previous ping is terminated, ms. */
   readonly heartbeatMs: number;
@@ -45,7 +48,7 @@ export const DEFAULT_LIMITS: ServiceLimits = {
   timeReversalTolerance: 5,
   maxIdLength: 128,
   maxNoteLength: 2000,
-  dashboardUpdatesPerSecond: 4,
+  dashboardWindowMs: 25,
   slowClientBytes: 1024 * 1024,
   slowClientGraceMs: 10_000,
   heartbeatMs: 30_000,

@@ -133,3 +133,53 @@ export function conflatePerKey<T>(
       mergeMap((group) => group.pipe(conflate(periodMs, scheduler))),
     );
 }
+
+/**
+ * Gather values for `windowMs` from the first value of a window, then emit, as one array, one
+ * value per key in the order the keys first arrived: the latest, or what `merge(kept, next)`
+ * makes of each newer one. A window still open when the source completes is emitted before
+ * completion. Holds only the keys of the open window.
+ *
+ *   source:  a1-b1-a2-------b2--|     window 4, key = the letter
+ *   result:  ----(x)--------(y)-|     x = [a2, b1], y = [b2] (emitted at completion)
+ */
+export function latestPerKeyPerWindow<T>(
+  key: (value: T) => string,
+  windowMs: number,
+  options: { merge?: (kept: T, next: T) => T; scheduler?: SchedulerLike } = {},
+): OperatorFunction<T, T[]> {
+  const scheduler = options.scheduler ?? asapScheduler;
+  const merge = options.merge ?? ((_kept: T, next: T) => next);
+  return (source) =>
+    new Observable<T[]>((subscriber) => {
+      let open = new Map<string, T>();
+      let timerSub: { unsubscribe(): void } | undefined;
+      const emit = () => {
+        timerSub = undefined;
+        const out = [...open.values()];
+        open = new Map();
+        if (out.length > 0) subscriber.next(out);
+      };
+      const sub = source.subscribe({
+        next(value) {
+          const k = key(value);
+          const kept = open.get(k);
+          open.set(k, kept === undefined ? value : merge(kept, value));
+          timerSub ??= scheduler.schedule(emit, windowMs);
+        },
+        error(e) {
+          subscriber.error(e);
+        },
+        complete() {
+          timerSub?.unsubscribe();
+          emit();
+          subscriber.complete();
+        },
+      });
+      return () => {
+        sub.unsubscribe();
+        timerSub?.unsubscribe();
+        open = new Map();
+      };
+    });
+}

@@ -175,6 +175,45 @@ export function errorReply(code: ErrorCode, reason: string, msgId?: string, reje
 
 export type Parsed = { ok: true; message: ClientMessage } | { ok: false; error: ErrorReply };
 
+const isId = (x: unknown): x is string => typeof x === 'string' && x.length >= 1 && x.length <= DEFAULT_LIMITS.maxIdLength && isCleanIdentifier(x);
+const POINTS_KEYS = 6; // v, type, id, vignette, track, points
+
+/**
+ * The common case checked without zod: a `points` message that `pointsSchema` certainly accepts
+ * (every test here implies the schema's; identifiers are measured in UTF-16 code units, at least
+ * the schema's count). Returns the message itself, or undefined: then the schema decides and
+ * words the error. The frame is fresh from JSON.parse, so the object is the sender's own data.
+ */
+export function fastPointsMessage(raw: unknown): PointsMessage | undefined {
+  if (typeof raw !== 'object' || raw === null || Array.isArray(raw)) return undefined;
+  const m = raw as Record<string, unknown>;
+  if (m.v !== PROTOCOL_VERSION || m.type !== 'points' || !isId(m.id) || !isId(m.vignette) || !isId(m.track)) return undefined;
+  let keys = 0;
+  for (const k in m) {
+    if (!Object.hasOwn(m, k)) return undefined;
+    keys++;
+  }
+  if (keys !== POINTS_KEYS) return undefined; // the five checked above and `points`, nothing else
+  const points = m.points;
+  if (!Array.isArray(points) || points.length < 1 || points.length > DEFAULT_LIMITS.maxPointsPerMessage) return undefined;
+  for (const p of points as unknown[]) {
+    if (typeof p !== 'object' || p === null || Array.isArray(p)) return undefined;
+    const q = p as Record<string, unknown>;
+    const { seq, t, values } = q;
+    if (typeof seq !== 'number' || !Number.isSafeInteger(seq) || seq < 1) return undefined;
+    if (typeof t !== 'number' || !Number.isFinite(t) || t < 0) return undefined;
+    if (!Array.isArray(values) || values.length < 1) return undefined;
+    for (const x of values as unknown[]) if (typeof x !== 'number' || !Number.isFinite(x)) return undefined;
+    let n = 0;
+    for (const k in q) {
+      if (!Object.hasOwn(q, k)) return undefined;
+      n++;
+    }
+    if (n !== 3) return undefined; // seq, t, values
+  }
+  return m as unknown as PointsMessage;
+}
+
 /** Parse one text frame; never throws. */
 export function parseClientMessage(text: string): Parsed {
   let raw: unknown;
@@ -183,6 +222,8 @@ export function parseClientMessage(text: string): Parsed {
   } catch (e) {
     return { ok: false, error: errorReply('BAD_JSON', `not valid JSON: ${e instanceof Error ? e.message : String(e)}`) };
   }
+  const fast = fastPointsMessage(raw);
+  if (fast) return { ok: true, message: fast };
   const msgId = typeof raw === 'object' && raw !== null && 'id' in raw && typeof raw.id === 'string' ? raw.id.slice(0, DEFAULT_LIMITS.maxIdLength) : undefined;
   if (typeof raw === 'object' && raw !== null && 'v' in raw && raw.v !== PROTOCOL_VERSION) {
     return { ok: false, error: errorReply('UNSUPPORTED_VERSION', `protocol version ${JSON.stringify(raw.v)} is not supported; this server speaks ${PROTOCOL_VERSION}`, msgId) };

@@ -8,9 +8,9 @@
  *
  * Pipeline: socket frames → parse (never throws) → EventService.receive (validate, stage) →
  * batchPerTurn → EventService.flush (one journal transaction, then acks) ; EventService.changes$
- * → conflatePerKey (each run at most `dashboardUpdatesPerSecond`) → every watcher's send queue,
- * which keeps only the latest message per key while the socket's buffer is over the limit and
- * drops the watcher if it stays there.
+ * → latestPerKeyPerWindow (`dashboardWindowMs`, latest per key) → one `updates` message,
+ * serialised once, to every watcher that keeps up; a watcher over `slowClientBytes` unsent is
+ * skipped and sent a fresh snapshot when it has caught up, or dropped if it stays behind.
  *
  * Security defaults: loopback bind; binding elsewhere requires a producer token; producers must
  * present it (Authorization: Bearer, or ?token=); browser connections must come from an allowed
@@ -33,9 +33,9 @@ import { fromService } from '../debrief/source.js';
 import { EventService, type Change, type Role } from './event-service.js';
 import { Journal, JournalError } from './journal.js';
 import { DEFAULT_LIMITS, type ServiceLimits } from './limits.js';
-import { batchPerTurn, conflatePerKey } from './operators.js';
+import { batchPerTurn, latestPerKeyPerWindow } from './operators.js';
 import { errorReply, parseClientMessage, protocolJsonSchema, type ClientMessage, type ServerReply } from './protocol.js';
-import type { WatchMessage } from './view.js';
+import type { WatchMessage, WatchUpdate } from './view.js';
 
 export interface ServeOptions {
   readonly host?: string;
@@ -94,8 +94,8 @@ const MIME: Record<string, string> = {
 
 interface Watcher {
   readonly ws: WebSocket;
-  readonly queue: Map<string, WatchMessage>;
-  overSince?: number;
+  /** Since when its socket buffer has been over the limit (it missed updates: a snapshot follows). */
+  behindSince?: number;
 }
 
 function canonicalPlan(plan: EventPlan): string {
@@ -346,74 +346,80 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       inbound$.next({ role, text: data.toString(), reply });
     });
     if (role === 'watcher') {
-      const w: Watcher = { ws, queue: new Map() };
+      const w: Watcher = { ws };
       watchers.add(w);
       ws.on('close', () => watchers.delete(w));
       send(ws, { type: 'snapshot', state: svc.snapshot() } satisfies WatchMessage);
     }
   };
 
-  const drain = (w: Watcher) => {
+  // Dashboards: the changes of each short window, the latest per key, serialised once and the
+  // same bytes sent to every watcher. A watcher whose socket buffer is over `slowClientBytes` is
+  // skipped (marked behind) and sent a fresh snapshot once it has read its backlog; one that stays
+  // behind for `slowClientGraceMs` is dropped with a note in the log. Nothing queues per watcher.
+  const deliver = (w: Watcher, frame: Buffer | undefined, now: number) => {
     const ws = w.ws;
     if (ws.readyState !== ws.OPEN) return;
     if (ws.bufferedAmount > limits.slowClientBytes) {
-      w.overSince ??= Date.now();
-      if (Date.now() - w.overSince > limits.slowClientGraceMs) {
-        log('dropping a dashboard that stopped reading');
+      w.behindSince ??= now;
+      if (now - w.behindSince > limits.slowClientGraceMs) {
+        log(`dropping a dashboard that stopped reading (over ${limits.slowClientBytes} bytes unsent for ${limits.slowClientGraceMs} ms)`);
         ws.terminate();
         watchers.delete(w);
       }
       return;
     }
-    w.overSince = undefined;
-    for (const [k, m] of w.queue) {
-      w.queue.delete(k);
-      ws.send(JSON.stringify(m));
-      if (ws.bufferedAmount > limits.slowClientBytes) break;
+    if (w.behindSince !== undefined) {
+      w.behindSince = undefined;
+      ws.send(JSON.stringify({ type: 'snapshot', state: svc.snapshot() } satisfies WatchMessage));
+      return;
     }
+    if (frame) ws.send(frame, { binary: false });
   };
 
-  const messageFor = (c: Change): [string, WatchMessage] | undefined => {
+  const updateFor = (c: Change): WatchUpdate | undefined => {
     switch (c.kind) {
       case 'run': {
         const run = svc.runView(c.key);
-        return run ? [`run:${c.key}`, { type: 'run', run }] : undefined;
+        return run ? { type: 'run', run } : undefined;
+      }
+      case 'progress': {
+        const run = svc.runView(c.key);
+        return run ? { type: 'progress', key: run.key, points: run.points, lastT: run.lastT } : undefined;
       }
       case 'vignette': {
         const vignette = svc.vignetteView(c.id);
-        return vignette ? [`vignette:${c.id}`, { type: 'vignette', vignette }] : undefined;
+        return vignette ? { type: 'vignette', vignette } : undefined;
       }
-      case 'combined':
-        {
-          const snap = svc.snapshot();
-          return ['combined', { type: 'combined', combined: snap.combined, timeline: snap.timeline, evidence: snap.evidence }];
-        }
+      case 'combined': {
+        const snap = svc.snapshot();
+        return { type: 'combined', combined: snap.combined, timeline: snap.timeline, evidence: snap.evidence };
+      }
       case 'log':
-        return [`log:${c.entry.id}`, { type: 'log', entry: c.entry }];
+        return { type: 'log', entry: c.entry };
       case 'journal':
-        return ['journal', { type: 'journal', journal: svc.journalStatus() }];
+        return { type: 'journal', journal: svc.journalStatus() };
     }
   };
-  const changeKey = (c: Change) => (c.kind === 'run' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : c.kind === 'journal' ? 'journal' : 'combined');
-  const MAX_QUEUE = 5000;
-  const changesSub = svc.changes$
-    .pipe(conflatePerKey(changeKey, 1000 / limits.dashboardUpdatesPerSecond, { idleMs: 60_000, isLast: (c) => c.kind === 'log' }))
-    .subscribe((c) => {
-      const m = messageFor(c);
-      if (!m) return;
-      for (const w of watchers) {
-        w.queue.set(m[0], m[1]);
-        if (w.queue.size > MAX_QUEUE) {
-          log(`dropping a dashboard with ${MAX_QUEUE} updates waiting`);
-          w.ws.terminate();
-          watchers.delete(w);
-          continue;
-        }
-        drain(w);
-      }
-    });
+  const changeKey = (c: Change) => (c.kind === 'run' || c.kind === 'progress' ? `run:${c.key}` : c.kind === 'vignette' ? `vignette:${c.id}` : c.kind === 'log' ? `log:${c.entry.id}` : c.kind === 'journal' ? 'journal' : 'combined');
+  // A whole run view covers its progress: never replace a pending 'run' by a 'progress'.
+  const keepRun = (kept: Change, next: Change): Change => (kept.kind === 'run' && next.kind === 'progress' ? kept : next);
+  const changesSub = svc.changes$.pipe(latestPerKeyPerWindow(changeKey, limits.dashboardWindowMs, { merge: keepRun })).subscribe((changes) => {
+    if (watchers.size === 0) return;
+    const updates: WatchUpdate[] = [];
+    for (const c of changes) {
+      const u = updateFor(c);
+      if (u) updates.push(u);
+    }
+    if (updates.length === 0) return;
+    const frame = Buffer.from(JSON.stringify({ type: 'updates', updates } satisfies WatchMessage));
+    const now = Date.now();
+    for (const w of watchers) deliver(w, frame, now);
+  });
+  // Watchers that fell behind get their snapshot (or are dropped) even while nothing changes.
   const drainTimer = setInterval(() => {
-    for (const w of watchers) if (w.queue.size > 0) drain(w);
+    const now = Date.now();
+    for (const w of watchers) if (w.behindSince !== undefined) deliver(w, undefined, now);
   }, 100);
   const heartbeat = setInterval(() => {
     for (const ws of wss.clients) {

@@ -160,9 +160,20 @@ export interface RunDetail {
   readonly log: readonly LogEntryView[];
 }
 
+/**
+ * Messages on /watch: a snapshot first (and again after a dashboard fell behind), then `updates`,
+ * each the changes of one short window (`dashboardWindowMs`), at most one per key. A run whose
+ * only change is new points comes as `progress` (its point count and latest time); any other
+ * change of a run sends the whole `run`.
+ */
 export type WatchMessage =
   | { readonly type: 'snapshot'; readonly state: EventView }
+  | { readonly type: 'updates'; readonly updates: readonly WatchUpdate[] }
+  | WatchUpdate;
+
+export type WatchUpdate =
   | { readonly type: 'run'; readonly run: RunView }
+  | { readonly type: 'progress'; readonly key: string; readonly points: number; readonly lastT: number }
   | { readonly type: 'vignette'; readonly vignette: VignetteView }
   | { readonly type: 'combined'; readonly combined: EventView['combined']; readonly timeline: EventView['timeline']; readonly evidence?: EventView['evidence'] }
   | { readonly type: 'log'; readonly entry: LogEntryView }

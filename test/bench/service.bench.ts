@@ -10,8 +10,8 @@
  *      for every run update the dashboard receives, the time since the newest point it reflects was
  *      sent. Prints the 50th, 95th and 99th percentiles.
  */
-import { spawn } from 'node:child_process';
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { execFileSync, spawn } from 'node:child_process';
+import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import WebSocket from 'ws';
@@ -20,8 +20,33 @@ const dir = mkdtempSync(join(tmpdir(), 'plumbline-sbench-'));
 const vignettes = Array.from({ length: 50 }, (_, i) => ({ id: `V${i + 1}`, horizon: 100000 }));
 writeFileSync(join(dir, 'plan.json'), JSON.stringify({ name: 'service benchmark', channels: [{ name: 'x', unit: 'm' }, { name: 'y', unit: 'm' }], vignettes }));
 
+/**
+ * CPU time of the service's main thread so far, ms (Linux /proc/<pid>/task/<pid>/stat, fields 14
+ * and 15: utime and stime in clock ticks; proc(5)). The machine is shared, so wall-clock rates
+ * depend on what else runs; points per CPU second of the main thread say what one core does.
+ * undefined where /proc is missing.
+ */
+const TICKS = (() => {
+  try {
+    return Number(execFileSync('getconf', ['CLK_TCK']).toString().trim()) || 100;
+  } catch {
+    return 100;
+  }
+})();
+function mainThreadCpuMs(pid: number): number | undefined {
+  const file = `/proc/${pid}/task/${pid}/stat`;
+  if (!existsSync(file)) return undefined;
+  const stat = readFileSync(file, 'utf8');
+  const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+  // fields[0] is field 3 (state): utime is field 14, stime field 15.
+  return ((Number(fields[11]) + Number(fields[12])) / TICKS) * 1000;
+}
+let serverPid = 0;
+
 async function startServer(port: number): Promise<() => void> {
-  const child = spawn(process.execPath, ['dist/ingest/cli/main.js', 'serve', '--plan', join(dir, 'plan.json'), '--journal', join(dir, 'journal.sqlite'), '--port', String(port)], { stdio: ['ignore', 'ignore', 'pipe'] });
+  // PLUMBLINE_BENCH_NODE_ARGS: options for the service's node, e.g. "--cpu-prof --cpu-prof-dir=prof" to profile it.
+  const nodeArgs = (process.env.PLUMBLINE_BENCH_NODE_ARGS ?? '').split(' ').filter(Boolean);
+  const child = spawn(process.execPath, [...nodeArgs, 'dist/ingest/cli/main.js', 'serve', '--plan', join(dir, 'plan.json'), '--journal', join(dir, 'journal.sqlite'), '--port', String(port)], { stdio: ['ignore', 'ignore', 'pipe'] });
   await new Promise<void>((res, rej) => {
     let err = '';
     child.stderr.on('data', (d: Buffer) => {
@@ -30,6 +55,7 @@ async function startServer(port: number): Promise<() => void> {
     });
     child.once('exit', (code) => rej(new Error(`server exited ${code}: ${err}`)));
   });
+  serverPid = child.pid ?? 0;
   return () => child.kill('SIGTERM');
 }
 
@@ -64,6 +90,7 @@ async function throughput(url: string, source: 'sim' | 'live', prefix: string, h
   });
   for (let k = 0; k < TRACKS; k++) ws.send(JSON.stringify({ v: 1, type: 'open', id: `o${k}`, vignette: `V${k + 1}`, track: `${prefix}-bulk`, source, channels: ['x', 'y'] }));
   const start = performance.now();
+  const cpuStart = mainThreadCpuMs(serverPid);
   let id = 0;
   for (let k = 0; k < TRACKS; k++) {
     for (let s = 0; s < PER; s += BATCH) {
@@ -75,7 +102,10 @@ async function throughput(url: string, source: 'sim' | 'live', prefix: string, h
   }
   while (acked < TRACKS * PER) await new Promise<void>((r) => (wake = r));
   const seconds = (performance.now() - start) / 1000;
-  console.log(`throughput (${source} tracks, points ${hz} Hz apart in track time): ${acked} points journaled and acknowledged in ${seconds.toFixed(2)} s = ${Math.round(acked / seconds).toLocaleString('en')} points/s`);
+  const cpuEnd = mainThreadCpuMs(serverPid);
+  const cpu = cpuStart !== undefined && cpuEnd !== undefined ? (cpuEnd - cpuStart) / 1000 : undefined;
+  const perCpu = cpu ? `; ${cpu.toFixed(2)} s CPU of the service's main thread = ${Math.round(acked / cpu).toLocaleString('en')} points per CPU second` : '';
+  console.log(`throughput (${source} tracks, points ${hz} Hz apart in track time): ${acked} points journaled and acknowledged in ${seconds.toFixed(2)} s = ${Math.round(acked / seconds).toLocaleString('en')} points/s${perCpu}`);
   ws.close();
 }
 
@@ -87,11 +117,15 @@ async function latency(base: string): Promise<void> {
   const watcher = await connect(`${base}/watch`);
   const samples: number[] = [];
   watcher.on('message', (d) => {
-    const m = JSON.parse(d.toString()) as { type: string; run?: { key: string; points: number } };
-    if (m.type !== 'run' || !m.run) return;
-    const times = sentAt.get(m.run.key);
-    const sent = times?.[m.run.points - 1];
-    if (sent !== undefined) samples.push(performance.now() - sent);
+    const now = performance.now();
+    type Delta = { type: string; run?: { key: string; points: number }; key?: string; points?: number };
+    const m = JSON.parse(d.toString()) as Delta | { type: 'updates'; updates: Delta[] };
+    for (const u of 'updates' in m ? m.updates : [m]) {
+      const at = u.type === 'run' && u.run ? u.run : u.type === 'progress' && u.key ? { key: u.key, points: u.points ?? 0 } : undefined;
+      if (!at) continue;
+      const sent = sentAt.get(at.key)?.[at.points - 1];
+      if (sent !== undefined) samples.push(now - sent);
+    }
   });
   const producers = await Promise.all(Array.from({ length: PRODUCERS }, () => connect(`${base}/feed`)));
   producers.forEach((ws, k) => {
@@ -129,12 +163,16 @@ async function main(): Promise<void> {
   const port = 17000 + Math.floor(Math.random() * 1000);
   const stop = await startServer(port);
   try {
-    await throughput(`ws://127.0.0.1:${port}/feed`, 'sim', 's', 50);
-    // Live runs also pass the data-quality monitor, which holds the last 5 s of track time for
-    // reordering: its cost grows with the sampling rate (2 Hz: a radar; 50 Hz: a fast sensor).
-    await throughput(`ws://127.0.0.1:${port}/feed`, 'live', 'l2', 2);
-    await throughput(`ws://127.0.0.1:${port}/feed`, 'live', 'l50', 50);
-    await latency(`ws://127.0.0.1:${port}`);
+    // `node dist/test/bench/service.bench.js throughput` (or `latency`) runs only that part.
+    const only = process.argv[2];
+    if (only !== 'latency') {
+      await throughput(`ws://127.0.0.1:${port}/feed`, 'sim', 's', 50);
+      // Live runs also pass the data-quality monitor, which holds the last 5 s of track time for
+      // reordering: its cost grows with the sampling rate (2 Hz: a radar; 50 Hz: a fast sensor).
+      await throughput(`ws://127.0.0.1:${port}/feed`, 'live', 'l2', 2);
+      await throughput(`ws://127.0.0.1:${port}/feed`, 'live', 'l50', 50);
+    }
+    if (only !== 'throughput') await latency(`ws://127.0.0.1:${port}`);
   } finally {
     stop();
     await new Promise((r) => setTimeout(r, 500));

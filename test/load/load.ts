@@ -5,8 +5,10 @@
  * socket is paused) to show it is dropped with a note in the log. Prints, and asserts nothing:
  *
  *   accepted points/s   points acknowledged (journaled) per second of the run
- *   latency             from a point's send to the first dashboard update that reflects it
- *                       (the run's point count reaches it), p50 / p99 over all dashboards
+ *   latency             from a point's send to the first dashboard message that reflects it
+ *                       (the run's point count, in a `run` or `progress` delta, reaches it;
+ *                       timed when the message arrives, before it is parsed), p50 / p99 over
+ *                       all dashboards
  *   event-loop delay    of the service process (perf_hooks histogram, from /healthz)
  *   memory              the service process's resident set (its compute worker included):
  *                       at start, peak while loaded, final; sampled every second
@@ -59,6 +61,14 @@ function connect(url: string): Promise<WebSocket> {
   });
 }
 
+/** One dashboard delta as this harness reads it. */
+interface Delta {
+  type: string;
+  run?: { vignette: string; points: number };
+  key?: string;
+  points?: number;
+}
+
 interface Health {
   eventLoop: { p50Ms: number; p99Ms: number; maxMs: number };
   memory: { rssBytes: number };
@@ -103,12 +113,16 @@ export async function runLoad(options: LoadOptions): Promise<LoadFigures> {
     for (const w of watchers) {
       const seen = new Int32Array(options.producers);
       w.on('message', (d) => {
-        const m = JSON.parse(d.toString()) as { type: string; run?: { vignette: string; points: number } };
-        if (m.type !== 'run' || !m.run) return;
-        const k = Number(m.run.vignette.slice(1)) - 1;
         const now = performance.now();
-        for (let n = seen[k] + 1; n <= m.run.points; n++) latencies.push(now - sentAt[k][n]);
-        seen[k] = Math.max(seen[k], m.run.points);
+        const m = JSON.parse(d.toString()) as Delta | { type: 'updates'; updates: Delta[] };
+        for (const u of 'updates' in m ? m.updates : [m]) {
+          // A whole run view, or only its new point count (`progress`, keyed "vignette/track").
+          const at = u.type === 'run' && u.run ? { vignette: u.run.vignette, points: u.run.points } : u.type === 'progress' && u.key ? { vignette: u.key.split('/')[0], points: u.points ?? 0 } : undefined;
+          if (!at) continue;
+          const k = Number(at.vignette.slice(1)) - 1;
+          for (let n = seen[k] + 1; n <= at.points; n++) latencies.push(now - sentAt[k][n]);
+          seen[k] = Math.max(seen[k], at.points);
+        }
       });
     }
     let quiet: WebSocket | undefined;

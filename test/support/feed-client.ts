@@ -18,9 +18,12 @@ export async function feedClient(url: string): Promise<FeedClient> {
   const replies: Reply[] = [];
   const waiters: Array<{ pred: (r: Reply) => boolean; resolve: (r: Reply) => void }> = [];
   ws.on('message', (d) => {
-    const r = JSON.parse(d.toString()) as Reply;
-    replies.push(r);
-    for (const w of [...waiters]) if (w.pred(r)) { waiters.splice(waiters.indexOf(w), 1); w.resolve(r); }
+    const m = JSON.parse(d.toString()) as Reply;
+    // A dashboard's `updates` message carries several deltas: each is kept as a reply of its own.
+    for (const r of m.type === 'updates' && Array.isArray(m.updates) ? (m.updates as Reply[]) : [m]) {
+      replies.push(r);
+      for (const w of [...waiters]) if (w.pred(r)) { waiters.splice(waiters.indexOf(w), 1); w.resolve(r); }
+    }
   });
   const closed = new Promise<number>((r) => ws.once('close', (code) => r(code)));
   await new Promise<void>((res, rej) => { ws.once('open', () => res()); ws.once('error', rej); });

@@ -1,7 +1,7 @@
 import { Subject } from 'rxjs';
 import { TestScheduler } from 'rxjs/testing';
 import { describe, expect, it } from 'vitest';
-import { batchPerTurn, conflate, conflatePerKey } from '../../../ingest/service/operators.js';
+import { batchPerTurn, conflate, conflatePerKey, latestPerKeyPerWindow } from '../../../ingest/service/operators.js';
 
 const scheduler = () => new TestScheduler((actual, expected) => expect(actual).toEqual(expected));
 
@@ -74,6 +74,32 @@ describe('conflatePerKey', () => {
       // every key delivered its first and its last value
       expect(out.filter((s) => s.endsWith('!'))).toHaveLength(100);
       expect(out).toHaveLength(200);
+    });
+  });
+});
+
+describe('latestPerKeyPerWindow', () => {
+  const values = { a: 'x1', b: 'y1', c: 'x2', d: 'y2', e: 'x3' };
+  const key = (v: string) => v[0];
+
+  it('emits one array per window: the latest of each key, in first-arrival order; flushes on completion', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('a-b-c-------d--|', values).pipe(latestPerKeyPerWindow(key, 5))).toBe('-----x---------(y|)', { x: ['x2', 'y1'], y: ['y2'] });
+    });
+  });
+
+  it('merges values of one key with the given function', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      // keep the value with the smaller number: a summary that must not be replaced by a lesser one
+      const merge = (kept: string, next: string) => (Number(kept[1]) < Number(next[1]) ? kept : next);
+      expectObservable(cold('a-c-e|', values).pipe(latestPerKeyPerWindow(key, 3, { merge }))).toBe('---x-(y|)', { x: ['x1'], y: ['x3'] });
+    });
+  });
+
+  it('errors pass through; nothing is emitted after unsubscribe', () => {
+    scheduler().run(({ cold, expectObservable }) => {
+      expectObservable(cold('a-#', values).pipe(latestPerKeyPerWindow(key, 5))).toBe('--#');
+      expectObservable(cold('a-b------|', values).pipe(latestPerKeyPerWindow(key, 5)), '^--!').toBe('---');
     });
   });
 });

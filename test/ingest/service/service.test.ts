@@ -345,8 +345,8 @@ describe('heartbeats', () => {
 });
 
 describe('dashboard feed', () => {
-  it('sends a snapshot, then per-run deltas conflated to the set rate whatever the input rate', async () => {
-    const server = await startServer({ planPath: files.plan, baselinePath: files.baseline, journalPath: join(dir, 'i.sqlite'), port: 0, limits: { dashboardUpdatesPerSecond: 4 } });
+  it('sends a snapshot, then per-run deltas gathered per window (at most one per run per window) whatever the input rate', async () => {
+    const server = await startServer({ planPath: files.plan, baselinePath: files.baseline, journalPath: join(dir, 'i.sqlite'), port: 0, limits: { dashboardWindowMs: 250 } });
     try {
       await server.service.settle();
       const w = await producer(`${server.url.replace('http', 'ws')}/watch`);
@@ -363,12 +363,17 @@ describe('dashboard feed', () => {
       await p.next((r) => r.id === `p${run.t.length - 1}` && r.type === 'ack');
       await new Promise((r) => setTimeout(r, 600));
       const seconds = (Date.now() - start) / 1000;
-      const deltas = w.replies.filter((r) => r.type === 'run');
-      // One point per message: hundreds of changes, at most 4 per second delivered (+1 leading).
+      const key = `${run.vignette}/${run.track}`;
+      // Each window's changes come as one `updates` message.
+      const frames = w.replies.filter((r) => r.type === 'updates');
+      expect(frames.length).toBeLessThanOrEqual(Math.ceil(seconds * 4) + 2);
+      const deltas = frames.flatMap((r) => r.updates as Array<Record<string, unknown>>).filter((r) => (r.type === 'run' && (r.run as { key: string }).key === key) || (r.type === 'progress' && r.key === key));
+      // One point per message: hundreds of changes, at most one delta per 250 ms window (+1 leading).
       expect(deltas.length).toBeGreaterThan(0);
       expect(deltas.length).toBeLessThanOrEqual(Math.ceil(seconds * 4) + 2);
-      const last = deltas[deltas.length - 1].run as { points: number };
-      expect(last.points).toBe(run.t.length);
+      // Points-only changes come as `progress`, others as the whole run; the last delta shows every point.
+      const last = deltas[deltas.length - 1];
+      expect(last.type === 'progress' ? last.points : (last.run as { points: number }).points).toBe(run.t.length);
       p.ws.close();
       w.ws.close();
     } finally {
