@@ -15,10 +15,11 @@ import { Worker } from 'node:worker_threads';
 import type { RawTrack } from '../../engine/types.js';
 import type { StreamRun } from '../../engine/evidence/index.js';
 import { Compute, type AssessResult, type ComputeConfig, type EvidenceResult, type FitResult } from './compute.js';
+import type { FitCacheEntry, FitCacheStore } from './fit-cache.js';
 
 export type WorkerRequest =
   | { kind: 'sims'; id: number; vignette: string; tracks: RawTrack[] }
-  | { kind: 'fit'; id: number; vignette: string }
+  | { kind: 'fit'; id: number; vignette: string; cached?: FitCacheEntry }
   | { kind: 'assess'; id: number; vignette: string; run: RawTrack; mode: 'final' | 'provisional' }
   | { kind: 'evidence'; id: number; runs: StreamRun[]; alpha: number };
 
@@ -46,8 +47,14 @@ export class Assessor {
   private busy?: Job;
   private nextId = 1;
   private failure?: Error;
+  private readonly cache?: FitCacheStore;
 
-  constructor(config: ComputeConfig, options: { inProcess?: boolean } = {}) {
+  /**
+   * With `cache`, every fit first offers the computation the vignette's stored entry of the fit
+   * cache (used when its content key matches) and stores the entry of every fresh fit.
+   */
+  constructor(config: ComputeConfig, options: { inProcess?: boolean; cache?: FitCacheStore } = {}) {
+    this.cache = options.cache;
     if (options.inProcess) {
       this.local = new Compute(config);
       return;
@@ -80,9 +87,15 @@ export class Assessor {
   fit(vignette: string): Promise<FitResult> {
     const waiting = this.pendingFits.get(vignette);
     if (waiting) return waiting;
-    const p = this.enqueue({ kind: 'fit', vignette }).then((r) => {
+    const cached = this.cache?.read(vignette);
+    const p = this.enqueue({ kind: 'fit', vignette, cached }).then((r) => {
       if (r?.kind !== 'fit') throw new Error('fit: unexpected reply');
-      return r.result;
+      const { cache, ...result } = r.result;
+      if (cache && !cache.hit) {
+        if (cache.rejected) this.cache?.note(`fit cache of vignette ${vignette} is ${cache.rejected}; refitted`);
+        if (cache.entry) this.cache?.write(vignette, cache.entry);
+      }
+      return { ...result, cache: cache?.hit ? cache : undefined };
     });
     // A fit still waiting in the queue is shared by later requests; one the worker has already
     // started (enqueue starts it at once when the worker is idle) is not, or a refit after more
@@ -165,7 +178,7 @@ export class Assessor {
       case 'sims':
         return { kind: 'sims', id: req.id, vignette: req.vignette, count: c.addSims(req.vignette, req.tracks) };
       case 'fit':
-        return { kind: 'fit', id: req.id, result: c.fit(req.vignette) };
+        return { kind: 'fit', id: req.id, result: c.fit(req.vignette, req.cached) };
       case 'assess':
         return { kind: 'assess', id: req.id, result: c.assess(req.vignette, req.run, req.mode) };
       case 'evidence':
