@@ -91,7 +91,8 @@ export class Assessor {
     const p = this.enqueue({ kind: 'fit', vignette, cached }).then((r) => {
       if (r?.kind !== 'fit') throw new Error('fit: unexpected reply');
       const { cache, ...result } = r.result;
-      if (cache && !cache.hit) {
+      if (cache?.hit) this.cache?.note(`fit of vignette ${vignette} loaded from the fit cache (${result.ms.toFixed(0)} ms)`);
+      else if (cache) {
         if (cache.rejected) this.cache?.note(`fit cache of vignette ${vignette} is ${cache.rejected}; refitted`);
         if (cache.entry) this.cache?.write(vignette, cache.entry);
       }
