@@ -32,6 +32,7 @@ export type WorkerReply =
 
 interface Job {
   readonly request: WorkerRequest;
+  readonly transfer?: ArrayBuffer[];
   readonly resolve: (reply: WorkerReply | undefined) => void;
   readonly reject: (error: Error) => void;
 }
@@ -80,8 +81,15 @@ export class Assessor {
     return this.failure;
   }
 
+  /**
+   * Hand simulated tracks to the computation. With a worker, each track is copied into one buffer
+   * of its exact size (times, then each channel) that is moved, not copied, to the worker: the
+   * caller's arrays are left as they were and the worker holds one compact copy.
+   */
   addSims(vignette: string, tracks: RawTrack[]): Promise<number> {
-    return this.enqueue({ kind: 'sims', vignette, tracks }).then((r) => (r?.kind === 'sims' ? r.count : 0));
+    const sent = this.worker ? tracks.map(compactTrack) : tracks;
+    const transfer = this.worker ? sent.map((t) => t.t.buffer as ArrayBuffer) : undefined;
+    return this.enqueue({ kind: 'sims', vignette, tracks: sent }, transfer).then((r) => (r?.kind === 'sims' ? r.count : 0));
   }
 
   fit(vignette: string): Promise<FitResult> {
@@ -130,10 +138,10 @@ export class Assessor {
     await this.worker?.terminate();
   }
 
-  private enqueue(request: Distributive<WorkerRequest>): Promise<WorkerReply | undefined> {
+  private enqueue(request: Distributive<WorkerRequest>, transfer?: ArrayBuffer[]): Promise<WorkerReply | undefined> {
     return new Promise((resolve, reject) => {
       if (this.failure) return reject(this.failure);
-      this.ordered.push({ request: { ...request, id: this.nextId++ } as WorkerRequest, resolve, reject });
+      this.ordered.push({ request: { ...request, id: this.nextId++ } as WorkerRequest, transfer, resolve, reject });
       this.pump();
     });
   }
@@ -159,7 +167,7 @@ export class Assessor {
     this.busy = job;
     if (job.request.kind === 'fit') this.pendingFits.delete(job.request.vignette);
     if (this.worker) {
-      this.worker.postMessage(job.request);
+      this.worker.postMessage(job.request, job.transfer);
     } else {
       const req = job.request;
       // In-process: run on a later turn so callers see the same asynchrony as with the worker.
@@ -206,4 +214,13 @@ export class Assessor {
     this.provisional.clear();
     for (const j of all) j.reject(error);
   }
+}
+
+/** A track's times and values copied into one buffer of their exact size (views on it). */
+function compactTrack(t: RawTrack): RawTrack {
+  const n = t.t.length;
+  const all = new Float64Array(n * (1 + t.values.length));
+  all.set(t.t, 0);
+  t.values.forEach((v, c) => all.set(v, (c + 1) * n));
+  return { vignette: t.vignette, track: t.track, t: all.subarray(0, n), values: t.values.map((_, c) => all.subarray((c + 1) * n, (c + 2) * n)) };
 }

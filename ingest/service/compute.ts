@@ -123,7 +123,13 @@ interface WindowEntry {
   readonly reference: CalibrationReference;
 }
 
-const WINDOW_CACHE = 48;
+/**
+ * Windows kept per vignette besides the full one (which is never dropped). A run in flight moves
+ * to a new prefix window at every provisional step, so older entries are rarely asked for again;
+ * each holds about N curves and their reference (about 0.5 MB for 200 runs on a 128-point grid
+ * with two channels), so this bounds the worker's memory (48 per vignette cost the demo ~200 MB).
+ */
+const WINDOW_CACHE = 6;
 
 export class Compute {
   private readonly vignettes = new Map<string, VignetteState>();
@@ -251,7 +257,11 @@ export class Compute {
     if (!reference) throw new NotAssessableError(`only ${curves.length} simulated tracks cover the window; at least 19 are needed for p = 0.05`);
     const entry = { curves, reference };
     v.windows.set(key, entry);
-    if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
+    if (v.windows.size > WINDOW_CACHE + 1) {
+      const full = windowKey(fullWindow(v.baseline.horizon));
+      const oldest = [...v.windows.keys()].find((k) => k !== full);
+      if (oldest !== undefined) v.windows.delete(oldest);
+    }
     return entry;
   }
 
