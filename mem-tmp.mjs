@@ -1,0 +1,14 @@
+import { startServer } from './dist/ingest/service/server.js';
+import { rmSync } from 'node:fs';
+const m = (l) => { const u = process.memoryUsage(); console.log(l, 'rss', u.rss>>20, 'heapUsed', u.heapUsed>>20, 'heapTotal', u.heapTotal>>20, 'external', u.external>>20, 'ab', u.arrayBuffers>>20); };
+m('start');
+const d = '/tmp/rb/demo-after';
+rmSync('/tmp/rb/memj.sqlite', { force: true }); rmSync('/tmp/rb/memj.sqlite-wal', { force: true });
+let last = '';
+const s = await startServer({ planPath: d + '/plan.json', baselinePath: d + '/baseline.csv', journalPath: '/tmp/rb/memj.sqlite', port: 0, inProcessCompute: process.argv[2] === 'inproc', onProgress: (l, dd, t) => { if (l !== last) { m(l); last = l; } } });
+m('started');
+await s.service.settle();
+m('settled');
+await new Promise((r) => setTimeout(r, 3000));
+m('3s later');
+await s.close();
