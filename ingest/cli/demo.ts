@@ -5,14 +5,15 @@
  * the dashboard's address. The service keeps running after the last run (Ctrl-C stops it), unless
  * `exitWhenDone` is set.
  */
-import { accessSync, constants, mkdirSync, rmSync } from 'node:fs';
+import { accessSync, constants, mkdirSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import type { RawTrack } from '../../engine/types.js';
 import { replay } from '../service/replay.js';
 import { startServer, type RunningServer } from '../service/server.js';
 import type { AssessmentReport } from '../report.js';
 import { combinedLines, evidenceLine } from './assess.js';
-import { buildPackage, writePackage } from '../debrief/package.js';
+import { unzipSync } from 'fflate';
+import { zipInWorker } from '../debrief/offthread.js';
 import { fromService } from '../debrief/source.js';
 import { writeDemoFiles } from './demo-files.js';
 import { formatP, table } from './format.js';
@@ -91,7 +92,11 @@ export async function runDemo(options: DemoRunOptions): Promise<{ server: Runnin
   const report = server.service.exportReport();
   say(`replayed ${summary.points} points in ${summary.tracks} runs`);
   const debrief = join(options.dir, 'debrief');
-  writePackage(debrief, buildPackage(fromService(server.service, { kind: 'service', name: server.url }), { title: 'Demo debrief' }));
+  // Built on a short-lived worker thread (as GET /api/debrief.zip is), so the charts' memory is
+  // returned when it ends instead of staying in the service's heap.
+  const zip = unzipSync(await zipInWorker(fromService(server.service, { kind: 'service', name: server.url }), { title: 'Demo debrief' }));
+  mkdirSync(debrief, { recursive: true });
+  for (const [name, bytes] of Object.entries(zip)) if (name.startsWith('debrief/') && !name.endsWith('/')) writeFileSync(join(debrief, name.slice('debrief/'.length)), bytes);
   say(`debrief package written to ${debrief}/ (report.html, results.json, runs.csv, notes.csv)`);
   say(verdictTable(report));
   if (report.combined) for (const line of combinedLines(report.combined)) say(line);

@@ -22,7 +22,6 @@ import { assessFiles, formatReport, writeReport } from './assess.js';
 import { writeDemoFiles } from './demo-files.js';
 import { DemoError, runDemo } from './demo.js';
 import { readFileSync, writeFileSync } from 'node:fs';
-import { sourceProblem, writeDebrief } from './debrief.js';
 import { DebriefError } from '../debrief/source.js';
 import { resultsJsonSchema } from '../debrief/results-schema.js';
 import { JournalError } from '../service/journal.js';
@@ -308,6 +307,8 @@ async function reportCommand(args: string[]): Promise<number> {
   const { values } = parse(args, { journal: { type: 'string' }, baseline: { type: 'string' }, url: { type: 'string' }, in: { type: 'string' }, out: { type: 'string' } });
   const str = (x: string | boolean | undefined) => (typeof x === 'string' ? x : undefined);
   const o = { journal: str(values.journal), url: str(values.url), in: str(values.in), baseline: str(values.baseline) };
+  // Loaded when used: the charts library it brings is large, and the service and demo never need it.
+  const { sourceProblem, writeDebrief } = await import('./debrief.js');
   const problem = sourceProblem(o);
   if (problem) throw new UsageError(problem);
   if (o.baseline !== undefined && o.journal === undefined) throw new UsageError('report: --baseline goes with --journal');

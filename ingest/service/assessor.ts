@@ -15,10 +15,11 @@ import { Worker } from 'node:worker_threads';
 import type { RawTrack } from '../../engine/types.js';
 import type { StreamRun } from '../../engine/evidence/index.js';
 import { Compute, type AssessResult, type ComputeConfig, type EvidenceResult, type FitResult } from './compute.js';
+import type { FitCacheEntry, FitCacheStore } from './fit-cache.js';
 
 export type WorkerRequest =
   | { kind: 'sims'; id: number; vignette: string; tracks: RawTrack[] }
-  | { kind: 'fit'; id: number; vignette: string }
+  | { kind: 'fit'; id: number; vignette: string; cached?: FitCacheEntry }
   | { kind: 'assess'; id: number; vignette: string; run: RawTrack; mode: 'final' | 'provisional' }
   | { kind: 'evidence'; id: number; runs: StreamRun[]; alpha: number };
 
@@ -31,6 +32,7 @@ export type WorkerReply =
 
 interface Job {
   readonly request: WorkerRequest;
+  readonly transfer?: ArrayBuffer[];
   readonly resolve: (reply: WorkerReply | undefined) => void;
   readonly reject: (error: Error) => void;
 }
@@ -46,8 +48,14 @@ export class Assessor {
   private busy?: Job;
   private nextId = 1;
   private failure?: Error;
+  private readonly cache?: FitCacheStore;
 
-  constructor(config: ComputeConfig, options: { inProcess?: boolean } = {}) {
+  /**
+   * With `cache`, every fit first offers the computation the vignette's stored entry of the fit
+   * cache (used when its content key matches) and stores the entry of every fresh fit.
+   */
+  constructor(config: ComputeConfig, options: { inProcess?: boolean; cache?: FitCacheStore } = {}) {
+    this.cache = options.cache;
     if (options.inProcess) {
       this.local = new Compute(config);
       return;
@@ -73,16 +81,30 @@ export class Assessor {
     return this.failure;
   }
 
+  /**
+   * Hand simulated tracks to the computation. With a worker, each track is copied into one buffer
+   * of its exact size (times, then each channel) that is moved, not copied, to the worker: the
+   * caller's arrays are left as they were and the worker holds one compact copy.
+   */
   addSims(vignette: string, tracks: RawTrack[]): Promise<number> {
-    return this.enqueue({ kind: 'sims', vignette, tracks }).then((r) => (r?.kind === 'sims' ? r.count : 0));
+    const sent = this.worker ? tracks.map(compactTrack) : tracks;
+    const transfer = this.worker ? sent.map((t) => t.t.buffer as ArrayBuffer) : undefined;
+    return this.enqueue({ kind: 'sims', vignette, tracks: sent }, transfer).then((r) => (r?.kind === 'sims' ? r.count : 0));
   }
 
   fit(vignette: string): Promise<FitResult> {
     const waiting = this.pendingFits.get(vignette);
     if (waiting) return waiting;
-    const p = this.enqueue({ kind: 'fit', vignette }).then((r) => {
+    const cached = this.cache?.read(vignette);
+    const p = this.enqueue({ kind: 'fit', vignette, cached }).then((r) => {
       if (r?.kind !== 'fit') throw new Error('fit: unexpected reply');
-      return r.result;
+      const { cache, ...result } = r.result;
+      if (cache?.hit) this.cache?.note(`fit of vignette ${vignette} loaded from the fit cache (${result.ms.toFixed(0)} ms)`);
+      else if (cache) {
+        if (cache.rejected) this.cache?.note(`fit cache of vignette ${vignette} is ${cache.rejected}; refitted`);
+        if (cache.entry) this.cache?.write(vignette, cache.entry);
+      }
+      return { ...result, cache: cache?.hit ? cache : undefined };
     });
     // A fit still waiting in the queue is shared by later requests; one the worker has already
     // started (enqueue starts it at once when the worker is idle) is not, or a refit after more
@@ -116,10 +138,10 @@ export class Assessor {
     await this.worker?.terminate();
   }
 
-  private enqueue(request: Distributive<WorkerRequest>): Promise<WorkerReply | undefined> {
+  private enqueue(request: Distributive<WorkerRequest>, transfer?: ArrayBuffer[]): Promise<WorkerReply | undefined> {
     return new Promise((resolve, reject) => {
       if (this.failure) return reject(this.failure);
-      this.ordered.push({ request: { ...request, id: this.nextId++ } as WorkerRequest, resolve, reject });
+      this.ordered.push({ request: { ...request, id: this.nextId++ } as WorkerRequest, transfer, resolve, reject });
       this.pump();
     });
   }
@@ -145,7 +167,7 @@ export class Assessor {
     this.busy = job;
     if (job.request.kind === 'fit') this.pendingFits.delete(job.request.vignette);
     if (this.worker) {
-      this.worker.postMessage(job.request);
+      this.worker.postMessage(job.request, job.transfer);
     } else {
       const req = job.request;
       // In-process: run on a later turn so callers see the same asynchrony as with the worker.
@@ -165,7 +187,7 @@ export class Assessor {
       case 'sims':
         return { kind: 'sims', id: req.id, vignette: req.vignette, count: c.addSims(req.vignette, req.tracks) };
       case 'fit':
-        return { kind: 'fit', id: req.id, result: c.fit(req.vignette) };
+        return { kind: 'fit', id: req.id, result: c.fit(req.vignette, req.cached) };
       case 'assess':
         return { kind: 'assess', id: req.id, result: c.assess(req.vignette, req.run, req.mode) };
       case 'evidence':
@@ -192,4 +214,13 @@ export class Assessor {
     this.provisional.clear();
     for (const j of all) j.reject(error);
   }
+}
+
+/** A track's times and values copied into one buffer of their exact size (views on it). */
+function compactTrack(t: RawTrack): RawTrack {
+  const n = t.t.length;
+  const all = new Float64Array(n * (1 + t.values.length));
+  all.set(t.t, 0);
+  t.values.forEach((v, c) => all.set(v, (c + 1) * n));
+  return { vignette: t.vignette, track: t.track, t: all.subarray(0, n), values: t.values.map((_, c) => all.subarray((c + 1) * n, (c + 2) * n)) };
 }

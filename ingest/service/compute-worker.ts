@@ -18,7 +18,7 @@ port.on('message', (req: WorkerRequest) => {
         reply = { kind: 'sims', id: req.id, vignette: req.vignette, count: compute.addSims(req.vignette, req.tracks) };
         break;
       case 'fit':
-        reply = { kind: 'fit', id: req.id, result: compute.fit(req.vignette) };
+        reply = { kind: 'fit', id: req.id, result: compute.fit(req.vignette, req.cached) };
         break;
       case 'assess':
         reply = { kind: 'assess', id: req.id, result: compute.assess(req.vignette, req.run, req.mode) };

@@ -14,6 +14,7 @@ import type { CalibrationReference } from '../../engine/calibrate.js';
 import { fullWindow, observedWindow, windowKey, windowWeights, type TrackWindow } from '../../engine/grid.js';
 import { fitProjectionModel, projectRemainder, type Projection, type ProjectionModel } from '../../engine/projection.js';
 import type { AnalysisSettings, ChannelSpec, RawTrack } from '../../engine/types.js';
+import { decodeFit, encodeFit, fitKey, FIT_CACHE_FORMAT, type FitCacheEntry } from './fit-cache.js';
 
 export interface ComputeConfig {
   readonly vignettes: ReadonlyArray<{ id: string; horizon: number }>;
@@ -33,6 +34,11 @@ export interface FitResult {
   readonly texture?: Float64Array[];
   readonly error?: string;
   readonly ms: number;
+  /**
+   * The fit cache (./fit-cache.ts): `hit` when the given entry was used; otherwise a fresh entry to
+   * store (absent when the fit failed) and, when an entry was given but not used, why.
+   */
+  readonly cache?: { readonly hit: true } | { readonly hit: false; readonly entry?: FitCacheEntry; readonly rejected?: string };
 }
 
 /** How many simulated curves a dashboard draws faintly behind the bands. */
@@ -106,6 +112,8 @@ interface VignetteState {
   projection?: ProjectionModel;
   /** Scores of the simulated runs on the first two components of the full-window model: the sign reference for score views. */
   referenceScores?: [Float64Array, Float64Array];
+  /** The model summary and envelope of the current fit (computed once, cached with it). */
+  fitted?: { summary: ModelSummary; envelope: ChannelEnvelope[] };
   /** Per judged window: the simulated curves cut to it and their calibration reference, shared by every run. */
   windows: Map<string, WindowEntry>;
 }
@@ -115,7 +123,13 @@ interface WindowEntry {
   readonly reference: CalibrationReference;
 }
 
-const WINDOW_CACHE = 48;
+/**
+ * Windows kept per vignette besides the full one (which is never dropped). A run in flight moves
+ * to a new prefix window at every provisional step, so older entries are rarely asked for again;
+ * each holds about N curves and their reference (about 0.5 MB for 200 runs on a 128-point grid
+ * with two channels), so this bounds the worker's memory (48 per vignette cost the demo ~200 MB).
+ */
+const WINDOW_CACHE = 6;
 
 export class Compute {
   private readonly vignettes = new Map<string, VignetteState>();
@@ -136,38 +150,94 @@ export class Compute {
     return v.sims.size;
   }
 
-  /** (Re)fit a vignette's baseline from all its simulated tracks (in track-id order, as the file reader gives them). */
-  fit(vignette: string): FitResult {
+  /**
+   * (Re)fit a vignette's baseline from all its simulated tracks (in track-id order, as the file
+   * reader gives them). With `cached`, an entry of the fit cache whose content key matches these
+   * tracks and settings is loaded instead of refitting; the result is the same bit for bit.
+   */
+  fit(vignette: string, cached?: FitCacheEntry): FitResult {
     const start = performance.now();
     const v = this.vignette(vignette);
     const sims = [...v.sims.values()].sort((a, b) => (a.track < b.track ? -1 : a.track > b.track ? 1 : 0));
     v.windows.clear();
+    const key = fitKey(v.spec, this.config.channels, this.config.analysis, sims);
+    let rejected: string | undefined;
+    if (cached) {
+      if (cached.key !== key) rejected = 'stale (the simulated runs or the settings changed)';
+      else {
+        try {
+          this.install(v, decodeFit(cached.body));
+          return { ...this.fitView(v as VignetteState & { baseline: Baseline }, sims.length, start), cache: { hit: true } };
+        } catch (e) {
+          rejected = `unreadable (${e instanceof Error ? e.message : String(e)})`;
+        }
+      }
+    }
     try {
       const baseline = buildBaseline(v.spec.id, v.spec.horizon, this.config.channels, sims, this.config.analysis);
       if (baseline.curves.length < 19) throw new NotAssessableError(`vignette ${vignette} has ${baseline.curves.length} usable simulated tracks; at least 19 are needed`);
-      v.baseline = baseline;
-      v.simMean = meanCurve(baseline.curves);
-      v.projection = fitProjectionModel(baseline.curves, windowWeights(baseline.grid, fullWindow(baseline.horizon)), this.config.channels.length);
-      // The projection model's leading components are those of the simulated runs over the whole horizon.
-      const pm = v.projection.fpca;
-      v.referenceScores = [Float64Array.from(pm.scores, (r) => r[0] ?? 0), Float64Array.from(pm.scores, (r) => r[1] ?? 0)];
+      const projection = fitProjectionModel(baseline.curves, windowWeights(baseline.grid, fullWindow(baseline.horizon)), this.config.channels.length);
+      this.install(v, { baseline, projection });
+      const ready = v as VignetteState & { baseline: Baseline };
       // The full window's reference, so that the first complete run is judged at once.
-      this.windowEntry(v as VignetteState & { baseline: Baseline }, fullWindow(baseline.horizon));
-      return {
-        vignette,
-        sims: sims.length,
-        summary: summariseBaseline(baseline),
-        envelope: baselineEnvelope(baseline),
-        grid: baseline.grid.points,
-        texture: baseline.curves.slice(0, TEXTURE_CURVES).map((c) => Float64Array.from(c)),
-        ms: performance.now() - start,
-      };
+      const full = fullWindow(baseline.horizon);
+      const entry = this.windowEntry(ready, full);
+      const view = this.fitView(ready, sims.length, start);
+      const { sims: raw, ...rest } = baseline;
+      const body = encodeFit({
+        format: FIT_CACHE_FORMAT,
+        baseline: rest,
+        simIds: raw.map((s) => s.track),
+        projection: v.projection as ProjectionModel,
+        fullWindow: { key: windowKey(full), curves: entry.curves, reference: entry.reference },
+        summary: view.summary as ModelSummary,
+        envelope: view.envelope as ChannelEnvelope[],
+      });
+      return { ...view, ms: performance.now() - start, cache: { hit: false, entry: { key, body }, rejected } };
     } catch (e) {
       v.baseline = undefined;
       v.simMean = undefined;
       v.projection = undefined;
-      return { vignette, sims: sims.length, error: e instanceof Error ? e.message : String(e), ms: performance.now() - start };
+      v.fitted = undefined;
+      return { vignette, sims: sims.length, error: e instanceof Error ? e.message : String(e), ms: performance.now() - start, cache: { hit: false, rejected } };
     }
+  }
+
+  /** Make a fit (fresh, or from the cache with its summary, envelope and full-window reference) the vignette's model. */
+  private install(v: VignetteState, fit: { baseline: Baseline | Omit<Baseline, 'sims'>; projection: ProjectionModel; simIds?: readonly string[]; fullWindow?: { key: string; curves: readonly Float64Array[]; reference: CalibrationReference }; summary?: ModelSummary; envelope?: ChannelEnvelope[] }): void {
+    let baseline: Baseline;
+    if ('sims' in fit.baseline) baseline = fit.baseline;
+    else {
+      const ids = fit.simIds ?? [];
+      const sims = ids.map((id) => {
+        const s = v.sims.get(id);
+        if (!s) throw new Error(`simulated run ${id} of the cached fit is missing`);
+        return s;
+      });
+      baseline = { ...fit.baseline, sims };
+    }
+    v.baseline = baseline;
+    v.simMean = meanCurve(baseline.curves);
+    v.projection = fit.projection;
+    // The projection model's leading components are those of the simulated runs over the whole horizon.
+    const pm = fit.projection.fpca;
+    v.referenceScores = [Float64Array.from(pm.scores, (r) => r[0] ?? 0), Float64Array.from(pm.scores, (r) => r[1] ?? 0)];
+    v.fitted = fit.summary && fit.envelope ? { summary: fit.summary, envelope: fit.envelope } : undefined;
+    if (fit.fullWindow) v.windows.set(fit.fullWindow.key, { curves: fit.fullWindow.curves, reference: fit.fullWindow.reference });
+  }
+
+  private fitView(v: VignetteState & { baseline: Baseline }, sims: number, start: number): FitResult {
+    const baseline = v.baseline;
+    v.fitted ??= { summary: summariseBaseline(baseline), envelope: baselineEnvelope(baseline) };
+    return {
+      vignette: baseline.vignette,
+      sims,
+      summary: v.fitted.summary,
+      envelope: v.fitted.envelope,
+      grid: baseline.grid.points,
+      texture: baseline.curves.slice(0, TEXTURE_CURVES).map((c) => Float64Array.from(c)),
+      ms: performance.now() - start,
+    };
   }
 
   /**
@@ -187,7 +257,11 @@ export class Compute {
     if (!reference) throw new NotAssessableError(`only ${curves.length} simulated tracks cover the window; at least 19 are needed for p = 0.05`);
     const entry = { curves, reference };
     v.windows.set(key, entry);
-    if (v.windows.size > WINDOW_CACHE) v.windows.delete(v.windows.keys().next().value as string);
+    if (v.windows.size > WINDOW_CACHE + 1) {
+      const full = windowKey(fullWindow(v.baseline.horizon));
+      const oldest = [...v.windows.keys()].find((k) => k !== full);
+      if (oldest !== undefined) v.windows.delete(oldest);
+    }
     return entry;
   }
 

@@ -23,7 +23,8 @@ import type { ReadReport } from '../tracks-reader.js';
 import type { Assessor } from './assessor.js';
 import type { AssessResult, EvidenceResult } from './compute.js';
 import { PointStore, RecentTimes } from './point-store.js';
-import { journalWriteFailure, type Journal, type JournalLogEntry, type JournalPoint } from './journal.js';
+import { journalWriteFailure, type Journal, type JournalLogEntry, type JournalPoint, type SimPack } from './journal.js';
+import { packTrack, unpackTrack } from './fit-cache.js';
 import type { ServiceLimits } from './limits.js';
 import { errorReply, type ClientMessage, type CloseMessage, type ErrorCode, type NoteMessage, type OpenMessage, type PointsMessage, type ServerReply } from './protocol.js';
 import { envelopeView, type CombinedView, type EventView, type JournalStatusView, type Judgement, type LogEntryView, type RunDetail, type RunView, type TimelinePoint, type VignetteView } from './view.js';
@@ -191,8 +192,13 @@ export class EventService {
     if (options.fit !== false) await Promise.all([...byVignette.keys()].map((id) => this.refit(id)));
   }
 
-  /** Rebuild the state from the journal (tracks, points, results, log); refits and re-judges what needs it. */
-  async restore(onProgress?: (label: string, done: number, total: number) => void): Promise<{ tracks: number; points: number }> {
+  /**
+   * Rebuild the state from the journal (tracks, points, results, log); refits and re-judges what
+   * needs it. Closed simulated tracks are read from their packs (./fit-cache.ts, one row per track)
+   * when a valid one exists, else point by point (and packed for the next start); the service keeps
+   * none of their points, as after a close. `note` gets a line for every pack found damaged or not written.
+   */
+  async restore(onProgress?: (label: string, done: number, total: number) => void, note: (line: string) => void = () => undefined): Promise<{ tracks: number; points: number }> {
     const rows = this.journal.tracks();
     const byId = new Map<number, TrackState>();
     for (const r of rows) {
@@ -206,6 +212,21 @@ export class EventService {
       byId.set(r.id, t);
     }
     let points = 0;
+    const packed = new Map<number, RawTrack>();
+    const packs = this.journal.simPacks();
+    for (const t of byId.values()) {
+      const p = packs.get(t.id);
+      if (!p || t.source !== 'sim' || t.closedAt === undefined || p.lastSeq !== t.lastSeq) continue;
+      const raw = unpackTrack(p, t.vignette, t.track, this.plan.channels.length);
+      if (typeof raw === 'string') {
+        note(`${raw}; reading its points`);
+        continue;
+      }
+      packed.set(t.id, raw);
+      t.committedSeq = p.committedSeq;
+      t.maxT = raw.t[raw.t.length - 1] ?? 0;
+      points += p.n;
+    }
     this.journal.eachPoint((p) => {
       const t = byId.get(p.trackId);
       if (!t) return;
@@ -213,10 +234,33 @@ export class EventService {
       t.times.add(p.t);
       if (p.t > t.maxT) t.maxT = p.t;
       points++;
-    });
+    }, new Set(packed.keys()));
     for (const t of this.tracks.values()) {
-      this.advanceCommitted(t);
+      if (!packed.has(t.id)) this.advanceCommitted(t);
       if (t.quality && t.closedAt === undefined) this.observeQuality(t, [...t.points.values()].sort((a, b) => a.seq - b.seq), false);
+    }
+    // Closed simulated tracks go to the worker (the service keeps only their count); those read
+    // point by point are packed for the next start.
+    const simsBy = new Map<string, RawTrack[]>();
+    const fresh: SimPack[] = [];
+    for (const t of this.tracks.values()) {
+      if (t.source !== 'sim' || t.closedAt === undefined) continue;
+      let raw = packed.get(t.id);
+      if (!raw) {
+        raw = this.rawTrack(t);
+        fresh.push(packTrack(t.id, t.lastSeq ?? 0, t.committedSeq, raw));
+        t.points.clear();
+        t.times.clear();
+      }
+      const list = simsBy.get(t.vignette);
+      if (list) list.push(raw);
+      else simsBy.set(t.vignette, [raw]);
+    }
+    packed.clear();
+    try {
+      this.journal.saveSimPacks(fresh);
+    } catch (e) {
+      note(`simulated tracks not packed: ${journalWriteFailure(e) ?? (e instanceof Error ? e.message : String(e))}; the next start reads their points`);
     }
     const results = this.journal.results();
     for (const t of this.tracks.values()) {
@@ -240,11 +284,6 @@ export class EventService {
       if (t && kind && !t.flags.includes(kind)) t.flags.push(kind);
     }
     for (const t of this.tracks.values()) if (t.source === 'live') t.notes = this.log.filter((e) => e.kind === 'note' && e.vignette === t.vignette && e.track === t.track).length;
-    // Closed simulated tracks go to the worker; then every vignette with sims is fitted.
-    const simsBy = new Map<string, RawTrack[]>();
-    for (const t of this.tracks.values()) {
-      if (t.source === 'sim' && t.closedAt !== undefined) simsBy.set(t.vignette, [...(simsBy.get(t.vignette) ?? []), this.rawTrack(t)]);
-    }
     for (const [id, list] of simsBy) {
       const v = this.vignettes.get(id);
       if (v) v.sims = await this.assessor.addSims(id, list);
@@ -266,6 +305,15 @@ export class EventService {
       if (t.source === 'live' && t.closedAt !== undefined && !t.report) this.judgeFinal(t);
     }
     return { tracks: rows.length, points };
+  }
+
+  /** Pack a closed simulated track for the next start; a failure only means that start reads its points. */
+  private packSim(t: TrackState, raw: RawTrack): void {
+    try {
+      this.journal.saveSimPacks([packTrack(t.id, t.lastSeq ?? 0, t.committedSeq, raw)]);
+    } catch {
+      // the points are committed; the pack is derived from them
+    }
   }
 
   // ---------------------------------------------------------------- messages
@@ -509,6 +557,7 @@ export class EventService {
     if (t.source === 'sim') {
       const v = this.vignettes.get(t.vignette);
       const raw = this.rawTrack(t);
+      this.packSim(t, raw);
       // The worker keeps simulated tracks; the service keeps only the count.
       t.points.clear();
       t.times.clear();

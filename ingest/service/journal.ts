@@ -18,6 +18,22 @@ const CHUNK = 250;
 /** Rows per multi-row INSERT for the rest of a batch (one-point messages at a high rate). */
 const SMALL_CHUNK = 16;
 const MIN_SQLITE = [3, 51, 3];
+/** The fit cache (./fit-cache.ts): derived data, created on first write, never needed to rebuild the event. */
+const FIT_CACHE_TABLE = 'CREATE TABLE IF NOT EXISTS fit_cache(vignette TEXT PRIMARY KEY, key TEXT NOT NULL, checksum TEXT NOT NULL, body BLOB NOT NULL)';
+/** Closed simulated tracks packed one row each (./fit-cache.ts): derived from `points`, read instead of them on start. */
+const SIM_PACK_TABLE = 'CREATE TABLE IF NOT EXISTS sim_pack(track_id INTEGER PRIMARY KEY, last_seq INTEGER NOT NULL, committed_seq INTEGER NOT NULL, n INTEGER NOT NULL, crc INTEGER NOT NULL, body BLOB NOT NULL)';
+
+export interface SimPack {
+  readonly trackId: number;
+  readonly lastSeq: number;
+  /** The track's contiguous committed sequence number (its resume point). */
+  readonly committedSeq: number;
+  /** Points in the pack. */
+  readonly n: number;
+  /** CRC-32 of the body. */
+  readonly crc: number;
+  readonly body: Uint8Array;
+}
 
 export interface JournalTrack {
   readonly id: number;
@@ -255,13 +271,49 @@ export class Journal {
     return rows.map((r) => ({ id: r.id, vignette: r.vignette, track: r.track, source: r.source, channels: JSON.parse(r.channels) as string[], openedAt: r.opened_at, closedAt: r.closed_at, lastSeq: r.last_seq }));
   }
 
-  /** All points of all tracks, in (track, seq) order, one callback per point (bounded memory). */
-  eachPoint(fn: (p: JournalPoint) => void): void {
-    for (const row of this.db.prepare('SELECT track_id, seq, t, v FROM points ORDER BY track_id, seq').iterate() as Iterable<{ track_id: number; seq: number; t: number; v: Buffer }>) {
+  /** All points of all tracks (but those of `except`), in (track, seq) order, one callback per point (bounded memory). */
+  eachPoint(fn: (p: JournalPoint) => void, except?: ReadonlySet<number>): void {
+    const skip = except && except.size > 0;
+    const sql = `SELECT track_id, seq, t, v FROM points${skip ? ' WHERE track_id NOT IN (SELECT value FROM json_each(?))' : ''} ORDER BY track_id, seq`;
+    const stmt = this.db.prepare(sql);
+    for (const row of (skip ? stmt.iterate(JSON.stringify([...except])) : stmt.iterate()) as Iterable<{ track_id: number; seq: number; t: number; v: Buffer }>) {
       const copy = new Float64Array(row.v.byteLength / 8);
       new Uint8Array(copy.buffer).set(row.v);
       fn({ trackId: row.track_id, seq: row.seq, t: row.t, values: copy });
     }
+  }
+
+  /** The fit cache entry of a vignette (./fit-cache.ts), if any; a journal without the table has none. */
+  fitCache(vignette: string): { key: string; checksum: string; body: Uint8Array } | undefined {
+    if (!this.hasTable('fit_cache')) return undefined;
+    const row = this.db.prepare('SELECT key, checksum, body FROM fit_cache WHERE vignette = ?').get(vignette) as { key: string; checksum: string; body: Buffer } | undefined;
+    return row ? { key: row.key, checksum: row.checksum, body: new Uint8Array(row.body.buffer, row.body.byteOffset, row.body.byteLength) } : undefined;
+  }
+
+  saveFitCache(vignette: string, key: string, checksum: string, body: Uint8Array): void {
+    this.db.exec(FIT_CACHE_TABLE);
+    this.db.prepare('INSERT OR REPLACE INTO fit_cache(vignette, key, checksum, body) VALUES (?, ?, ?, ?)').run(vignette, key, checksum, Buffer.from(body.buffer, body.byteOffset, body.byteLength));
+  }
+
+  private hasTable(name: string): boolean {
+    return this.db.prepare("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?").get(name) !== undefined;
+  }
+
+  /** Every packed simulated track (./fit-cache.ts), by track id; none in a journal without the table. */
+  simPacks(): Map<number, SimPack> {
+    if (!this.hasTable('sim_pack')) return new Map();
+    const rows = this.db.prepare('SELECT track_id, last_seq, committed_seq, n, crc, body FROM sim_pack').all() as Array<{ track_id: number; last_seq: number; committed_seq: number; n: number; crc: number; body: Buffer }>;
+    return new Map(rows.map((r) => [r.track_id, { trackId: r.track_id, lastSeq: r.last_seq, committedSeq: r.committed_seq, n: r.n, crc: r.crc, body: new Uint8Array(r.body.buffer, r.body.byteOffset, r.body.byteLength) }]));
+  }
+
+  /** Store packs of closed simulated tracks in one transaction. */
+  saveSimPacks(packs: readonly SimPack[]): void {
+    if (packs.length === 0) return;
+    this.db.exec(SIM_PACK_TABLE);
+    const stmt = this.db.prepare('INSERT OR REPLACE INTO sim_pack(track_id, last_seq, committed_seq, n, crc, body) VALUES (?, ?, ?, ?, ?, ?)');
+    this.db.transaction(() => {
+      for (const p of packs) stmt.run(p.trackId, p.lastSeq, p.committedSeq, p.n, p.crc, Buffer.from(p.body.buffer, p.body.byteOffset, p.body.byteLength));
+    })();
   }
 
   results(): Map<number, unknown> {

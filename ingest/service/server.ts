@@ -28,6 +28,7 @@ import { WebSocketServer, type WebSocket } from 'ws';
 import { loadPlan, type EventPlan } from '../plan.js';
 import { readTracks } from '../tracks-reader.js';
 import { Assessor } from './assessor.js';
+import { FitCacheStore } from './fit-cache.js';
 import { zipInWorker } from '../debrief/offthread.js';
 import { fromService } from '../debrief/source.js';
 import { EventService, type Change, type Role } from './event-service.js';
@@ -55,6 +56,8 @@ export interface ServeOptions {
   /** Run the statistics on the main thread (tests); the default is a worker thread. */
   readonly inProcessCompute?: boolean;
   readonly refitDelayMs?: number;
+  /** Keep fitted baselines in the journal and load them on start when they still match (./fit-cache.ts); default on. */
+  readonly fitCache?: boolean;
   readonly log?: (line: string) => void;
   readonly onProgress?: (label: string, done: number, total: number) => void;
 }
@@ -124,7 +127,7 @@ export interface OpenedEvent {
  */
 export async function openEvent(
   journal: Journal,
-  options: Pick<ServeOptions, 'plan' | 'planPath' | 'baselinePath' | 'inProcessCompute' | 'refitDelayMs' | 'onProgress' | 'journalPath'> & { limits: ServiceLimits; log?: (line: string) => void },
+  options: Pick<ServeOptions, 'plan' | 'planPath' | 'baselinePath' | 'inProcessCompute' | 'refitDelayMs' | 'onProgress' | 'journalPath' | 'fitCache'> & { limits: ServiceLimits; log?: (line: string) => void },
 ): Promise<OpenedEvent> {
   const log = options.log ?? (() => undefined);
   const limits = options.limits;
@@ -143,7 +146,7 @@ export async function openEvent(
 
     assessor = new Assessor(
       { vignettes: plan.vignettes, channels: plan.channels, analysis: plan.analysis, provisionalStep: limits.provisionalStep },
-      { inProcess: options.inProcessCompute },
+      { inProcess: options.inProcessCompute, cache: options.fitCache === false ? undefined : new FitCacheStore(journal, log) },
     );
     const service = new EventService({ plan, journal, assessor, limits, refitDelayMs: options.refitDelayMs });
 
@@ -155,7 +158,7 @@ export async function openEvent(
       await service.loadBaseline(read.tracks, read.report, { fit: false });
       log(`baseline: ${read.report.accepted} points in ${read.report.tracks} simulated tracks from ${baselinePath}`);
     }
-    const restored = await service.restore(options.onProgress);
+    const restored = await service.restore(options.onProgress, log);
     if (restored.tracks > 0) log(`journal: restored ${restored.tracks} tracks and ${restored.points} points from ${options.journalPath}`);
     return { plan, service, assessor };
   } catch (e) {
