@@ -13,10 +13,10 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { closedLine, EntityRouter, parseListen, startDisSource, type DisSourceOptions, type RunSink } from '../../../ingest/dis/bridge.js';
 import { FeedClient } from '../../../ingest/dis/feed-client.js';
-import { geodeticToEcef } from '../../../ingest/dis/geodesy.js';
 import { DisMappingError, parseDisMapping, resolveMapping, type DisMappingDocument } from '../../../ingest/dis/mapping.js';
 import { decodeEntityStatePdu } from '../../../ingest/dis/pdu.js';
 import { encodeTimestamp } from '../../../ingest/dis/time.js';
+import { enuToEcef as enuAtSite } from './enu.js';
 import { loadPlan, parsePlan } from '../../../ingest/plan.js';
 import { startServer } from '../../../ingest/service/server.js';
 import { handBuiltPdu } from './hand-built.js';
@@ -44,22 +44,12 @@ const MAPPING: DisMappingDocument = {
 const plan = parsePlan(JSON.stringify(PLAN), 'plan.json');
 const entries = resolveMapping(parseDisMapping(JSON.stringify(MAPPING), 'map.json'), plan);
 
-/** ENU at SITE → geocentric: the transpose of the EPSG 9836 rotation, plus the site's position. */
-function enuToEcef(e: number, n: number, u: number): [number, number, number] {
-  const phi = (SITE.lat * Math.PI) / 180;
-  const lam = (SITE.lon * Math.PI) / 180;
-  const [x0, y0, z0] = geodeticToEcef(SITE);
-  return [
-    x0 - Math.sin(lam) * e - Math.sin(phi) * Math.cos(lam) * n + Math.cos(phi) * Math.cos(lam) * u,
-    y0 + Math.cos(lam) * e - Math.sin(phi) * Math.sin(lam) * n + Math.cos(phi) * Math.sin(lam) * u,
-    z0 + Math.cos(phi) * n + Math.sin(phi) * u,
-  ];
-}
+const enuAt = (e: number, n: number, u: number) => enuAtSite(SITE, e, n, u);
 const pathRange = (t: number) => 1000 + 20 * t;
 const pathBearing = (t: number) => 30 + 3 * t;
 function pathPdu(t: number, startPastHour: number, version: 6 | 7, entity = 7, exercise = 1): Uint8Array {
   const b = (pathBearing(t) * Math.PI) / 180;
-  const location = enuToEcef(pathRange(t) * Math.sin(b), pathRange(t) * Math.cos(b), 0);
+  const location = enuAt(pathRange(t) * Math.sin(b), pathRange(t) * Math.cos(b), 0);
   return handBuiltPdu({ version, exercise, site: 10, application: 20, entity, timestamp: encodeTimestamp(startPastHour + t, true), location, marking: 'USV7' });
 }
 

@@ -13,11 +13,11 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { closedLine, startDisSource, type RunningDisSource } from '../../../ingest/dis/bridge.js';
 import { FeedClient } from '../../../ingest/dis/feed-client.js';
-import { geodeticToEcef } from '../../../ingest/dis/geodesy.js';
 import { resolveMapping, type DisSourceDocument } from '../../../ingest/dis/mapping.js';
 import { startServiceDisSource } from '../../../ingest/dis/service-source.js';
 import { startServeDis } from '../../../ingest/cli/serve-dis.js';
 import { encodeTimestamp } from '../../../ingest/dis/time.js';
+import { enuToEcef as enuAtSite } from './enu.js';
 import { parsePlanWithSources } from '../../../ingest/plan.js';
 import { startServer, type RunningServer } from '../../../ingest/service/server.js';
 import { encodeWith, loadOpenDis, type OpenDisRecord } from './open-dis.js';
@@ -46,16 +46,7 @@ const { plan, sources } = parsePlanWithSources(JSON.stringify(PLAN_DOC), 'plan.j
 const planPath = join(dir, 'plan.json');
 writeFileSync(planPath, JSON.stringify(PLAN_DOC));
 
-function enuToEcef(e: number, n: number, u: number): [number, number, number] {
-  const phi = (SITE.lat * Math.PI) / 180;
-  const lam = (SITE.lon * Math.PI) / 180;
-  const [x0, y0, z0] = geodeticToEcef(SITE);
-  return [
-    x0 - Math.sin(lam) * e - Math.sin(phi) * Math.cos(lam) * n + Math.cos(phi) * Math.cos(lam) * u,
-    y0 + Math.cos(lam) * e - Math.sin(phi) * Math.sin(lam) * n + Math.cos(phi) * Math.sin(lam) * u,
-    z0 + Math.cos(phi) * n + Math.sin(phi) * u,
-  ];
-}
+const enuAt = (e: number, n: number, u: number) => enuAtSite(SITE, e, n, u);
 const pathRange = (t: number) => 500 + 15 * t;
 const pathBearing = (t: number) => 200 + 2 * t;
 
@@ -65,7 +56,7 @@ function openDisPdu(t: number, version: 6 | 7, entity = 9): Uint8Array {
   const dis = openDis[version];
   const pdu = new dis.EntityStatePdu();
   const b = (pathBearing(t) * Math.PI) / 180;
-  const [x, y, z] = enuToEcef(pathRange(t) * Math.sin(b), pathRange(t) * Math.cos(b), 0);
+  const [x, y, z] = enuAt(pathRange(t) * Math.sin(b), pathRange(t) * Math.cos(b), 0);
   pdu.protocolVersion = version;
   pdu.exerciseID = 4;
   pdu.timestamp = encodeTimestamp(1000 + t, true);
