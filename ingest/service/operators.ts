@@ -5,14 +5,18 @@
 import { asapScheduler, groupBy, mergeMap, Observable, timer, type OperatorFunction, type SchedulerLike } from 'rxjs';
 
 /**
- * Collect the values that arrive within one scheduler turn and emit them as one array.
- * With the default asap scheduler, everything the socket layer delivers in one macrotask (all
- * frames of one TCP read) becomes one batch, which the journal commits in one transaction.
+ * Collect the values that arrive within one turn of the event loop and emit them as one array.
+ * By default the batch is emitted in Node's check phase (`setImmediate`), which follows the poll
+ * phase: every frame of every socket read in one poll becomes one batch, which the journal
+ * commits in one transaction (nodejs.org/en/learn/asynchronous-work/event-loop-timers-and-nexttick,
+ * "setImmediate() vs setTimeout()"). A microtask would end the batch after each socket's read,
+ * one transaction per connection per poll. With a `scheduler`, the batch ends when it runs the
+ * emission (tests pass rxjs's virtual-time schedulers).
  *
  *   source:  -a-b-----c--|
  *   result:  -(x)-----(y)|     x = [a, b] (same turn), y = [c]   (with a 1-frame scheduler delay)
  */
-export function batchPerTurn<T>(scheduler: SchedulerLike = asapScheduler): OperatorFunction<T, T[]> {
+export function batchPerTurn<T>(scheduler?: SchedulerLike): OperatorFunction<T, T[]> {
   return (source) =>
     new Observable<T[]>((subscriber) => {
       let buffer: T[] = [];
@@ -28,7 +32,11 @@ export function batchPerTurn<T>(scheduler: SchedulerLike = asapScheduler): Opera
           buffer.push(value);
           if (!scheduled) {
             scheduled = true;
-            sub.add(scheduler.schedule(emit));
+            if (scheduler) sub.add(scheduler.schedule(emit));
+            else {
+              const handle = setImmediate(emit);
+              sub.add(() => clearImmediate(handle));
+            }
           }
         },
         error(e) {

@@ -281,21 +281,37 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   // Socket frames arrive as text and are parsed here; in-process sources (`RunningServer.submit`)
   // hand over messages they built and checked themselves. Both go through the same batch and flush.
   const inbound$ = new Subject<{ role: Role; text: string; reply: (r: ServerReply) => void } | { role: Role; message: ClientMessage; reply: (r: ServerReply) => void }>();
+  // While a batch is handled, the sockets it replies to are corked: a connection that sent several
+  // messages in the batch gets all their replies in one write (one system call, not one per ack).
+  let corked: Set<Duplex> | undefined;
+  const hold = (socket: Duplex) => {
+    if (corked && !corked.has(socket)) {
+      socket.cork();
+      corked.add(socket);
+    }
+  };
   const sub = inbound$
     .pipe(batchPerTurn())
     .subscribe((batch) => {
-      for (const m of batch) {
-        const parsed = 'text' in m ? parseClientMessage(m.text) : ({ ok: true, message: m.message } as const);
-        if (!parsed.ok) m.reply(parsed.error);
-        else {
-          try {
-            svc.receive(m.role, parsed.message, m.reply);
-          } catch (e) {
-            m.reply(errorReply('INTERNAL', e instanceof Error ? e.message : String(e), parsed.message.id));
+      corked = new Set();
+      try {
+        for (const m of batch) {
+          const parsed = 'text' in m ? parseClientMessage(m.text) : ({ ok: true, message: m.message } as const);
+          if (!parsed.ok) m.reply(parsed.error);
+          else {
+            try {
+              svc.receive(m.role, parsed.message, m.reply);
+            } catch (e) {
+              m.reply(errorReply('INTERNAL', e instanceof Error ? e.message : String(e), parsed.message.id));
+            }
           }
         }
+        svc.flush();
+      } finally {
+        const held = corked;
+        corked = undefined;
+        for (const socket of held) socket.uncork();
       }
-      svc.flush();
     });
 
   let ownOrigins: string[] = [];
@@ -315,14 +331,14 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       const bearer = /^Bearer (.+)$/.exec(req.headers.authorization ?? '')?.[1] ?? url.searchParams.get('token') ?? undefined;
       if (!sameToken(bearer, options.token)) return refuse(socket, 401, 'Unauthorized');
     }
-    wss.handleUpgrade(req, socket, head, (ws) => onConnection(ws, role));
+    wss.handleUpgrade(req, socket, head, (ws) => onConnection(ws, role, socket));
   });
 
   const send = (ws: WebSocket, msg: unknown) => {
     if (ws.readyState === ws.OPEN) ws.send(JSON.stringify(msg));
   };
 
-  const onConnection = (ws: WebSocket, role: Role) => {
+  const onConnection = (ws: WebSocket, role: Role, socket: Duplex) => {
     alive.set(ws, true);
     roles.set(ws, role);
     ws.on('pong', () => alive.set(ws, true));
@@ -330,7 +346,10 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
     let tokens = limits.messageBurst;
     let last = Date.now();
     let strikes = 0;
-    const reply = (r: ServerReply) => send(ws, r);
+    const reply = (r: ServerReply) => {
+      hold(socket);
+      send(ws, r);
+    };
     ws.on('message', (data, isBinary) => {
       const now = Date.now();
       tokens = Math.min(limits.messageBurst, tokens + ((now - last) / 1000) * limits.messagesPerSecond);

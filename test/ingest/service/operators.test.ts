@@ -1,4 +1,4 @@
-import { Subject } from 'rxjs';
+import { asapScheduler, Subject } from 'rxjs';
 import { TestScheduler } from 'rxjs/testing';
 import { describe, expect, it } from 'vitest';
 import { batchPerTurn, conflate, conflatePerKey, latestPerKeyPerWindow } from '../../../ingest/service/operators.js';
@@ -10,16 +10,34 @@ describe('batchPerTurn', () => {
     scheduler().run(({ cold, expectObservable }) => {
       // The test scheduler runs "same turn" work at the same virtual frame.
       const s = cold('(ab)-c-|');
-      expectObservable(s.pipe(batchPerTurn())).toBe('(x)--y-|', { x: ['a', 'b'], y: ['c'] });
+      expectObservable(s.pipe(batchPerTurn(asapScheduler))).toBe('(x)--y-|', { x: ['a', 'b'], y: ['c'] });
       const e = cold('a-#');
-      expectObservable(e.pipe(batchPerTurn())).toBe('x-#', { x: ['a'] });
+      expectObservable(e.pipe(batchPerTurn(asapScheduler))).toBe('x-#', { x: ['a'] });
     });
   });
 
   it('releases its buffer on early unsubscribe', () => {
     scheduler().run(({ cold, expectObservable }) => {
-      expectObservable(cold('a-b-c-|').pipe(batchPerTurn()), '^--!').toBe('x-y-', { x: ['a'], y: ['b'] });
+      expectObservable(cold('a-b-c-|').pipe(batchPerTurn(asapScheduler)), '^--!').toBe('x-y-', { x: ['a'], y: ['b'] });
     });
+  });
+
+  it('by default, one batch per event-loop turn: callbacks of one phase share a batch', async () => {
+    // Two timers due at once run in the same timers phase, with microtasks drained between them
+    // (Node's documented order since v11: nodejs.org/en/learn/asynchronous-work/event-loop-timers-and-nexttick);
+    // a microtask-ended batch would split them, the check-phase batch keeps them together.
+    const s = new Subject<string>();
+    const batches: string[][] = [];
+    const sub = s.pipe(batchPerTurn()).subscribe((b) => batches.push(b));
+    await new Promise<void>((done) => {
+      setTimeout(() => s.next('a'), 0);
+      setTimeout(() => s.next('b'), 0);
+      setTimeout(() => setImmediate(done), 5);
+    });
+    s.next('c');
+    await new Promise<void>((done) => setImmediate(done));
+    sub.unsubscribe();
+    expect(batches).toEqual([['a', 'b'], ['c']]);
   });
 });
 
