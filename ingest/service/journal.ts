@@ -21,6 +21,19 @@ const MIN_SQLITE = [3, 51, 3];
 /** The fit cache (./fit-cache.ts): derived data, created on first write, never needed to rebuild the event. */
 const FIT_CACHE_TABLE = 'CREATE TABLE IF NOT EXISTS fit_cache(vignette TEXT PRIMARY KEY, key TEXT NOT NULL, checksum TEXT NOT NULL, body BLOB NOT NULL)';
 /** Closed simulated tracks packed one row each (./fit-cache.ts): derived from `points`, read instead of them on start. */
+const BASELINE_CACHE_TABLES = [
+  'CREATE TABLE IF NOT EXISTS baseline_cache(key TEXT PRIMARY KEY, report TEXT NOT NULL)',
+  'CREATE TABLE IF NOT EXISTS baseline_track(key TEXT NOT NULL, ord INTEGER NOT NULL, vignette TEXT NOT NULL, track TEXT NOT NULL, n INTEGER NOT NULL, crc INTEGER NOT NULL, body BLOB NOT NULL, PRIMARY KEY(key, ord))',
+];
+/** A baseline file's track, packed (./baseline-cache.ts). */
+export interface BaselineTrackRow {
+  readonly ord: number;
+  readonly vignette: string;
+  readonly track: string;
+  readonly n: number;
+  readonly crc: number;
+  readonly body: Uint8Array;
+}
 const SIM_PACK_TABLE = 'CREATE TABLE IF NOT EXISTS sim_pack(track_id INTEGER PRIMARY KEY, last_seq INTEGER NOT NULL, committed_seq INTEGER NOT NULL, n INTEGER NOT NULL, crc INTEGER NOT NULL, body BLOB NOT NULL)';
 
 export interface SimPack {
@@ -313,6 +326,27 @@ export class Journal {
     const stmt = this.db.prepare('INSERT OR REPLACE INTO sim_pack(track_id, last_seq, committed_seq, n, crc, body) VALUES (?, ?, ?, ?, ?, ?)');
     this.db.transaction(() => {
       for (const p of packs) stmt.run(p.trackId, p.lastSeq, p.committedSeq, p.n, p.crc, Buffer.from(p.body.buffer, p.body.byteOffset, p.body.byteLength));
+    })();
+  }
+
+  /** The cached read of a baseline file with this key (./baseline-cache.ts), in file order. */
+  baselineCache(key: string): { report: string; tracks: BaselineTrackRow[] } | undefined {
+    if (!this.hasTable('baseline_cache') || !this.hasTable('baseline_track')) return undefined;
+    const head = this.db.prepare('SELECT report FROM baseline_cache WHERE key = ?').get(key) as { report: string } | undefined;
+    if (!head) return undefined;
+    const rows = this.db.prepare('SELECT ord, vignette, track, n, crc, body FROM baseline_track WHERE key = ? ORDER BY ord').all(key) as Array<{ ord: number; vignette: string; track: string; n: number; crc: number; body: Buffer }>;
+    return { report: head.report, tracks: rows.map((r) => ({ ord: r.ord, vignette: r.vignette, track: r.track, n: r.n, crc: r.crc, body: new Uint8Array(r.body.buffer, r.body.byteOffset, r.body.byteLength) })) };
+  }
+
+  /** Replace the baseline cache by this file's read, in one transaction (other keys are dropped). */
+  saveBaselineCache(key: string, report: string, tracks: readonly BaselineTrackRow[]): void {
+    for (const sql of BASELINE_CACHE_TABLES) this.db.exec(sql);
+    const row = this.db.prepare('INSERT INTO baseline_track(key, ord, vignette, track, n, crc, body) VALUES (?, ?, ?, ?, ?, ?, ?)');
+    this.db.transaction(() => {
+      this.db.prepare('DELETE FROM baseline_track').run();
+      this.db.prepare('DELETE FROM baseline_cache').run();
+      for (const t of tracks) row.run(key, t.ord, t.vignette, t.track, t.n, t.crc, Buffer.from(t.body.buffer, t.body.byteOffset, t.body.byteLength));
+      this.db.prepare('INSERT INTO baseline_cache(key, report) VALUES (?, ?)').run(key, report);
     })();
   }
 

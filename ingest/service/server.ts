@@ -26,8 +26,8 @@ import { monitorEventLoopDelay } from 'node:perf_hooks';
 import { Subject } from 'rxjs';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { loadPlan, type EventPlan } from '../plan.js';
-import { readTracks } from '../tracks-reader.js';
 import { Assessor } from './assessor.js';
+import { readBaseline } from './baseline-cache.js';
 import { FitCacheStore } from './fit-cache.js';
 import { zipInWorker } from '../debrief/offthread.js';
 import { fromService } from '../debrief/source.js';
@@ -153,10 +153,10 @@ export async function openEvent(
     const baselinePath = options.baselinePath ?? journal.getMeta('baselineFile');
     if (baselinePath) {
       if (!existsSync(baselinePath)) throw new ServeError('PLAN_REQUIRED', `the baseline file ${baselinePath} (recorded in the journal) is missing`);
-      const read = await readTracks(baselinePath, plan, { onProgress: (d, t) => options.onProgress?.('reading the baseline', d, t) });
+      const read = await readBaseline(journal, baselinePath, plan, { onProgress: (d, t) => options.onProgress?.('reading the baseline', d, t), log, cache: options.fitCache !== false });
       journal.setMeta('baselineFile', resolve(baselinePath));
       await service.loadBaseline(read.tracks, read.report, { fit: false });
-      log(`baseline: ${read.report.accepted} points in ${read.report.tracks} simulated tracks from ${baselinePath}`);
+      log(`baseline: ${read.report.accepted} points in ${read.report.tracks} simulated tracks from ${baselinePath}${read.fromCache ? ' (from the journal\'s cache of the file)' : ''}`);
     }
     const restored = await service.restore(options.onProgress, log);
     if (restored.tracks > 0) log(`journal: restored ${restored.tracks} tracks and ${restored.points} points from ${options.journalPath}`);
