@@ -165,6 +165,29 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
       return b.text === msg.text && b.author === (msg.author ?? 'producer');
     });
 
+  // The journaled points of closed tracks, read once per track when a redelivery needs them.
+  const closedPoints = new Map<string, Map<number, Float64Array>>();
+  const planChannels = server.service.snapshot().plan.channels.map((c) => c.name);
+  const closedTrackHolds = (msg: Extract<ClientMessage, { type: 'points' }>): boolean => {
+    const key = `${msg.vignette}\u0000${msg.track}`;
+    const track = server.journal.tracks().find((t) => t.vignette === msg.vignette && t.track === msg.track);
+    if (!track) return false;
+    let points = closedPoints.get(key);
+    if (!points) {
+      const found = new Map<number, Float64Array>();
+      server.journal.eachPoint((p) => {
+        if (p.trackId === track.id) found.set(p.seq, Float64Array.of(p.t, ...p.values));
+      });
+      if (closedPoints.size >= 16) closedPoints.delete(closedPoints.keys().next().value as string);
+      closedPoints.set(key, (points = found));
+    }
+    const order = track.channels.map((c) => planChannels.indexOf(c));
+    return msg.points.every((p) => {
+      const stored = points.get(p.seq);
+      return stored !== undefined && stored[0] === p.t && p.values.length === order.length && p.values.every((x, i) => stored[1 + order[i]] === x);
+    });
+  };
+
   const handle = async (m: JsMsg): Promise<void> => {
     stats.received++;
     const where = parseInputSubject(layout, m.subject);
@@ -195,6 +218,14 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
         return;
       }
       case 'term':
+        // Points of a closed track come back when the messages before its `close` are delivered
+        // again: journaled already, they are duplicates, not errors.
+        if (outcome.code === 'TRACK_CLOSED' && msg.type === 'points' && closedTrackHolds(msg)) {
+          m.ack();
+          stats.acknowledged++;
+          stats.duplicatePoints += msg.points.length;
+          return;
+        }
         return terminate(m, outcome.code, outcome.reason);
       case 'retry':
         stats.retried++;
