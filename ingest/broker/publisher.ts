@@ -6,7 +6,6 @@
  */
 import { jetstream, type JetStreamClient } from '@nats-io/jetstream';
 import type { NatsConnection } from '@nats-io/transport-node';
-import type { EventPlan } from '../plan.js';
 import type { ClientMessage } from '../service/protocol.js';
 import type { RawTrack } from '../../engine/types.js';
 import { BrokerError } from './streams.js';
@@ -14,7 +13,7 @@ import { inputSubject, type Layout } from './subjects.js';
 
 export interface PublishOptions {
   readonly layout: Layout;
-  readonly plan: Pick<EventPlan, 'channels'>;
+  readonly plan: { readonly channels: ReadonlyArray<{ readonly name: string }> };
   readonly source?: 'live' | 'sim';
   readonly pointsPerMessage?: number;
   /** Runs published side by side (default 4). */

@@ -52,12 +52,22 @@ export async function attachMonitor(server: RunningServer, values: { broker?: un
       async close() {
         await monitor.close();
         await nc.drain();
+        log(monitorSummary(monitor));
       },
     };
   } catch (e) {
     await nc.close();
     throw e;
   }
+}
+
+/** One line: what the monitor did, and its publish → journaled acknowledgement latency. */
+export function monitorSummary(monitor: Monitor): string {
+  const s = monitor.stats();
+  const lat = Float64Array.from(monitor.latencies()).sort();
+  const q = (p: number) => (lat.length > 0 ? lat[Math.min(lat.length - 1, Math.floor(p * lat.length))].toFixed(1) : '-');
+  const terminated = Object.entries(s.terminated).map(([c, n]) => `${c} ${n}`).join(', ') || 'none';
+  return `broker: shard ${monitor.shard}: ${s.received} messages, ${s.acknowledged} acknowledged, ${s.acceptedPoints} points journaled, ${s.duplicatePoints} duplicate points, ${s.retried} retried, terminated: ${terminated}; publish → journaled ack p50 ${q(0.5)} ms, p99 ${q(0.99)} ms (${lat.length} messages)`;
 }
 
 export async function publishCommand(args: string[]): Promise<number> {
