@@ -20,6 +20,13 @@ export interface PublishOptions {
   readonly overlap?: number;
   /** Track-time speed-up (track seconds per wall second); Infinity (default) publishes as fast as the broker takes it. */
   readonly speed?: number;
+  /**
+   * Publishes of one run that may wait for the broker's acknowledgement at once (default 1). The
+   * broker stores one connection's messages in the order sent, so a run stays in order; with more
+   * than one, a failed publish may leave a gap before later messages (the monitor then refuses a
+   * `close` with INCOMPLETE): publish the run again from its start, which doubles nothing.
+   */
+  readonly window?: number;
   /** Called with each message's publish time (ms, performance.now() clock) and id. */
   readonly onPublished?: (id: string, at: number) => void;
 }
@@ -66,8 +73,10 @@ export async function publishTracks(nc: NatsConnection, tracks: readonly RawTrac
   let duplicates = 0;
   let points = 0;
   const queue = [...tracks];
+  const window = Math.max(1, options.window ?? 1);
   const one = async (track: RawTrack) => {
     const started = performance.now();
+    const pending = new Set<Promise<void>>();
     for (const m of trackMessages(track, channels, options.source ?? 'live', per)) {
       if (m.type === 'points' && Number.isFinite(speed)) {
         const due = started + (m.points[0].t / speed) * 1000;
@@ -75,11 +84,19 @@ export async function publishTracks(nc: NatsConnection, tracks: readonly RawTrac
         if (wait > 0) await new Promise((r) => setTimeout(r, wait));
       }
       options.onPublished?.(m.id, performance.now());
-      const r = await publishMessage(js, options.layout, m as ClientMessage & { vignette: string; track: string });
-      messages++;
-      if (r.duplicate) duplicates++;
-      if (m.type === 'points') points += m.points.length;
+      const p: Promise<void> = publishMessage(js, options.layout, m as ClientMessage & { vignette: string; track: string }).then((r) => {
+        messages++;
+        if (r.duplicate) duplicates++;
+        if (m.type === 'points') points += m.points.length;
+      });
+      pending.add(p);
+      void p.then(
+        () => pending.delete(p),
+        () => undefined,
+      );
+      if (pending.size >= window) await Promise.race(pending);
     }
+    await Promise.all(pending);
   };
   const lanes = Array.from({ length: Math.max(1, options.overlap ?? 4) }, async () => {
     for (let t = queue.shift(); t; t = queue.shift()) await one(t);
