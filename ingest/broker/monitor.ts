@@ -127,7 +127,7 @@ async function openConsumer(jsm: JetStreamManager, layout: Layout, name: string,
     log(`broker: consumer ${name} created (${config.filter_subject}, from the stream's start)`);
     return;
   }
-  if (info.num_ack_pending > 0 || info.delivered.stream_seq > info.ack_floor.stream_seq) {
+  if (info.num_ack_pending > 0) {
     const from = info.ack_floor.stream_seq + 1;
     await jsm.consumers.delete(stream, name);
     await jsm.consumers.add(stream, { ...config, deliver_policy: DeliverPolicy.StartSequence, opt_start_seq: from });
@@ -260,7 +260,9 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
   }
 
   // ------------------------------------------------------------- results for the gatherer
-  const published = new Set<string>();
+  // Each run's published p-values: a run judged again (a refit after simulated runs were added) is published again.
+  const published = new Map<string, string>();
+  const fingerprint = (p: { l2: number; score: number; residual: number; overall: number }) => `${p.l2} ${p.score} ${p.residual} ${p.overall}`;
   let scanTimer: NodeJS.Timeout | undefined;
   let scanning: Promise<void> = Promise.resolve();
   const scan = async () => {
@@ -271,10 +273,11 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
       const t = byId.get(id);
       if (!t || t.source !== 'live' || !options.vignettes.includes(t.vignette)) continue;
       const key = `${t.vignette}/${t.track}`;
-      if (published.has(key)) continue;
       const b = body as StoredResultBody;
       const st = b.report?.statistics;
       if (!st || !b.nullPValues || !b.report?.overall) continue;
+      const print = fingerprint({ l2: st.l2.pValue, score: st.score.pValue, residual: st.residual.pValue, overall: b.report.overall.pValue });
+      if (published.get(key) === print) continue;
       const result: RunResult = {
         kind: 'result',
         shard,
@@ -287,7 +290,7 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
         nullPValues: b.nullPValues,
       };
       await js.publish(resultSubject(layout, t.vignette, t.track), JSON.stringify(result));
-      published.add(key);
+      published.set(key, print);
       stats.resultsPublished++;
     }
   };
@@ -297,8 +300,11 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
       scanning = scanning.then(scan).catch((e: unknown) => log(`broker: publishing results: ${e instanceof Error ? e.message : String(e)}`));
     }, 200);
   };
+  // Only a run newly judged final sends the monitor to the journal (the results are read in full there).
   const changes = server.service.changes$.subscribe((c) => {
-    if (c.kind === 'run' || c.kind === 'combined') scheduleScan();
+    if (c.kind !== 'run') return;
+    const j = server.service.runView(c.key)?.judgement;
+    if (j?.kind === 'final' && published.get(c.key) !== fingerprint(j.pValues)) scheduleScan();
   });
   const announcement: MonitorAnnouncement = { kind: 'monitor', shard, monitor: server.url, vignettes: [...options.vignettes], at: Date.now() };
   await js.publish(monitorSubject(layout, shard), JSON.stringify(announcement));
