@@ -155,7 +155,8 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
   const terminate = (m: JsMsg, code: string, reason: string) => {
     stats.terminated[code] = (stats.terminated[code] ?? 0) + 1;
     log(`broker: terminated ${m.subject} #${m.seq} (${code}): ${reason}`);
-    m.term(`${code}: ${reason}`.slice(0, 200));
+    // No reason on the wire: nats-server 2.9 takes only a bare +TERM (a reason arrived in 2.10).
+    m.term();
   };
 
   const noteSeen = (msg: Extract<ClientMessage, { type: 'note' }>): boolean =>
