@@ -13,7 +13,7 @@ import { inputFilter, inputStream, resultsFilters, resultsStream, type Layout } 
 
 export class BrokerError extends Error {
   constructor(
-    readonly code: 'BROKER_UNREACHABLE' | 'BROKER_NO_JETSTREAM' | 'UNKNOWN_VIGNETTE' | 'BAD_SHARD' | 'PUBLISH_FAILED',
+    readonly code: 'BROKER_UNREACHABLE' | 'BROKER_NO_JETSTREAM' | 'UNKNOWN_VIGNETTE' | 'BAD_SHARD' | 'BAD_USAGE' | 'PUBLISH_FAILED',
     message: string,
   ) {
     super(message);

@@ -32,7 +32,7 @@ function layoutOf(event: unknown): Layout {
 function positive(value: unknown, name: string, fallback: number): number {
   if (value === undefined) return fallback;
   const n = Number(value);
-  if (!(n > 0)) throw new BrokerError('BAD_SHARD', `--${name} must be a positive number, got ${String(value)}`);
+  if (!(n > 0)) throw new BrokerError('BAD_USAGE', `--${name} must be a positive number, got ${String(value)}`);
   return n;
 }
 
@@ -72,7 +72,7 @@ export function monitorSummary(monitor: Monitor): string {
 
 export async function publishCommand(args: string[]): Promise<number> {
   const { values } = parseArgs({ args, strict: true, options: { broker: { type: 'string' }, live: { type: 'string' }, plan: { type: 'string' }, event: { type: 'string' }, speed: { type: 'string' }, overlap: { type: 'string' }, 'points-per-message': { type: 'string' } } });
-  if (!values.broker || !values.live || !values.plan) throw new BrokerError('BAD_SHARD', 'publish needs --broker nats://HOST:PORT, --live FILE and --plan FILE');
+  if (!values.broker || !values.live || !values.plan) throw new BrokerError('BAD_USAGE', 'publish needs --broker nats://HOST:PORT, --live FILE and --plan FILE');
   const plan = await loadPlan(values.plan);
   const tracks = (await readTracks(values.live, plan)).tracks;
   const nc = await connectBroker(values.broker, 'plumbline publish');
@@ -96,7 +96,7 @@ export async function publishCommand(args: string[]): Promise<number> {
 
 export async function gatherCommand(args: string[], staticDir: string | undefined): Promise<number> {
   const { values } = parseArgs({ args, strict: true, options: { broker: { type: 'string' }, event: { type: 'string' }, host: { type: 'string' }, port: { type: 'string' } } });
-  if (!values.broker) throw new BrokerError('BAD_SHARD', 'gather needs --broker nats://HOST:PORT');
+  if (!values.broker) throw new BrokerError('BAD_USAGE', 'gather needs --broker nats://HOST:PORT');
   const nc = await connectBroker(values.broker, 'plumbline gather');
   const g = await startGatherer({ nc, layout: layoutOf(values.event), host: values.host ?? '127.0.0.1', port: values.port === undefined ? 7350 : positive(values.port, 'port', 7350), staticDir, log: (line) => process.stderr.write(`${line}\n`) });
   process.stderr.write(`plumbline gather is serving ${g.url}\n`);
