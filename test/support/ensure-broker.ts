@@ -18,7 +18,7 @@ const MIN = [2, 2] as const;
 
 function check(): { ok: boolean; line: string } {
   const path = natsServerPath();
-  if (!path) return { ok: false, line: 'no nats-server on the PATH' };
+  if (!path) return { ok: false, line: process.env.PLUMBLINE_NATS_SERVER ? `no nats-server at ${process.env.PLUMBLINE_NATS_SERVER}` : 'no nats-server on the PATH' };
   const version = natsServerVersion(path);
   const m = /(\d+)\.(\d+)\.(\d+)/.exec(version ?? '');
   if (!m) return { ok: false, line: `${path} does not report a version` };
