@@ -7,7 +7,9 @@
  *     → RunningServer.submit (the same batch → validate → journal → ack path as a /feed frame)
  *     → the service's reply: ack the broker message once the service acknowledged (journaled);
  *       a refused message (bad input) is terminated with a log line carrying the service's code;
- *       JOURNAL_UNAVAILABLE and INTERNAL are negatively acknowledged (redelivered after a pause)
+ *       JOURNAL_UNAVAILABLE, INTERNAL and RATE_LIMITED are negatively acknowledged (redelivered
+ *       after a pause); TRACK_NOT_OPEN and INCOMPLETE too, up to `orderDeliveries` deliveries
+ *       (a retried message can put a run's messages out of order), then terminated
  *   service.changes$ → runs newly final → their p-values and the simulated runs' null triples
  *     (from the journal) → `<prefix>.<event>.result.<vignette>.<run>` (last value kept)
  *
@@ -39,7 +41,13 @@ export const MONITOR_LIMITS = {
   /** How long the broker waits for an acknowledgement before it redelivers, ms. */
   ackWaitMs: 60_000,
   /** Delay before a message refused for a passing reason (journal unavailable) is delivered again, ms. */
-  retryDelayMs: 2000,
+  retryDelayMs: 1000,
+  /**
+   * Deliveries of a message refused for its order (points before their `open`, a `close` before
+   * its points: after a retried message, delivery is no longer in stream order) before it is
+   * terminated.
+   */
+  orderDeliveries: 4,
   /** Latency samples kept (the most recent). */
   latencySamples: 200_000,
 } as const;
@@ -76,6 +84,7 @@ export interface Monitor {
 type Outcome = { kind: 'ack'; accepted: number; duplicates: number } | { kind: 'term'; code: string; reason: string } | { kind: 'retry'; code: string; reason: string };
 
 const RETRY_CODES = new Set(['JOURNAL_UNAVAILABLE', 'INTERNAL', 'RATE_LIMITED']);
+const ORDER_CODES = new Set(['TRACK_NOT_OPEN', 'INCOMPLETE']);
 
 /** Submit one message and turn the service's reply (or replies, for a partly refused `points`) into one outcome. */
 function submitOnce(server: MonitorOptions['server'], message: ClientMessage): Promise<Outcome> {
@@ -225,6 +234,12 @@ export async function startMonitor(options: MonitorOptions): Promise<Monitor> {
           m.ack();
           stats.acknowledged++;
           stats.duplicatePoints += msg.points.length;
+          return;
+        }
+        if (ORDER_CODES.has(outcome.code) && m.info.deliveryCount < MONITOR_LIMITS.orderDeliveries) {
+          stats.retried++;
+          log(`broker: ${m.subject} #${m.seq} will be delivered again (${outcome.code}, delivery ${m.info.deliveryCount} of ${MONITOR_LIMITS.orderDeliveries}): ${outcome.reason}`);
+          m.nak(MONITOR_LIMITS.retryDelayMs);
           return;
         }
         return terminate(m, outcome.code, outcome.reason);

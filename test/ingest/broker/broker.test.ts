@@ -122,7 +122,7 @@ describe('the demo event through the broker into two shard monitors', () => {
     }
   }, 60_000);
 
-  it('terminates bad messages with the service code, never redelivers them, and keeps the good part', async () => {
+  it('terminates bad messages with the service code, delivers none again beyond a bound, and keeps the good part', async () => {
     const js = jetstream(nc);
     const v = plan.vignettes[0].id;
     const channels = plan.channels.map((c) => c.name);
@@ -135,10 +135,12 @@ describe('the demo event through the broker into two shard monitors', () => {
     await publishMessage(js, layout, { v: 1, type: 'points', id: 'p5', vignette: v, track: 'bad-5', points: [{ seq: 1, t: 0, values: [2500, 120] }, { seq: 2, t: 0.5, values: [2499] }] });
     await js.publish(inputSubject(layout, v, 'bad-6'), JSON.stringify({ v: 2, type: 'open', id: 'o', vignette: v, track: 'bad-6', source: 'live', channels }));
     const codes = ['BAD_JSON', 'TRACK_NOT_OPEN', 'SUBJECT_MISMATCH', 'CHANNELS_MISMATCH', 'WRONG_VALUE_COUNT', 'UNSUPPORTED_VERSION'];
-    await waitFor('the bad messages terminated', () => codes.every((c) => (a.monitor.stats().terminated[c] ?? 0) >= 1), 20_000);
+    await waitFor('the bad messages terminated', () => codes.every((c) => (a.monitor.stats().terminated[c] ?? 0) >= 1), 30_000);
+    // Points before any `open` may be a matter of order: delivered again up to 4 times, then terminated.
+    expect(a.lines.filter((l) => l.includes(`${inputSubject(layout, v, 'bad-2')} #`) && l.includes('will be delivered again (TRACK_NOT_OPEN'))).toHaveLength(3);
     for (const c of codes) expect(a.lines.some((l) => l.includes('terminated') && l.includes(`(${c})`))).toBe(true);
     const after = a.monitor.stats();
-    expect(after.received - before.received).toBe(7);
+    expect(after.received - before.received).toBe(7 + 3);
     // The good point of the partly refused message is journaled; the bad one is not.
     expect(journalPoints(a.server.journal).points.get(`${v}/bad-5`)).toEqual(new Map([[1, '0|2500|120']]));
     // Terminated means done: nothing is pending or redelivered on the consumer.
@@ -148,7 +150,7 @@ describe('the demo event through the broker into two shard monitors', () => {
     await new Promise((r) => setTimeout(r, 500));
     const c = await info();
     expect(c.num_ack_pending).toBe(0);
-    expect(c.num_redelivered).toBe(0);
+    expect(c.num_redelivered).toBeLessThanOrEqual(3);
     expect(c.ack_floor.stream_seq).toBe(c.delivered.stream_seq);
   }, 30_000);
 });
