@@ -32,6 +32,8 @@ import { disBridgeCommand, DisBridgeError, DisBridgeUsageError } from './dis-bri
 import { ServeError, startServer } from '../service/server.js';
 import { loadPlan, loadPlanWithSources } from '../plan.js';
 import { serveDisConfig, startServeDis, stopServeDis } from './serve-dis.js';
+import { attachMonitor, BROKER_USAGE, gatherCommand, publishCommand } from './broker.js';
+import { BrokerError } from '../broker/streams.js';
 import { readTracks } from '../tracks-reader.js';
 import { terminalProgress } from './progress.js';
 
@@ -75,6 +77,7 @@ commands:
       receive DIS Entity State PDUs (versions 6 and 7; unicast, broadcast or a multicast
       group) and send each mapped entity to a running service as a run, its position
       converted to the plan's channels; a run closes after S seconds without PDUs (default 10)
+${BROKER_USAGE}
 
 exit codes: 0 success, 2 bad input or usage, 3 internal failure`;
 
@@ -158,6 +161,10 @@ async function run(argv: string[]): Promise<number> {
       return reportCommand(rest);
     case 'replay':
       return replayCommand(rest);
+    case 'publish':
+      return publishCommand(rest);
+    case 'gather':
+      return gatherCommand(rest, dashboardDir());
     case 'dis-bridge': {
       const { values } = parse(rest, {
         listen: { type: 'string' },
@@ -224,6 +231,10 @@ async function serve(args: string[]): Promise<number> {
     durability: { type: 'string' },
     dis: { type: 'string' },
     'dis-map': { type: 'string' },
+    broker: { type: 'string' },
+    shard: { type: 'string' },
+    'shard-name': { type: 'string' },
+    event: { type: 'string' },
   });
   const durability = values.durability;
   if (durability !== undefined && durability !== 'normal' && durability !== 'full') throw new UsageError('--durability must be "normal" or "full"');
@@ -253,6 +264,11 @@ async function serve(args: string[]): Promise<number> {
     throw e;
   }
   process.stderr.write(`plumbline is serving ${server.url}  (feed: ws://${server.url.slice(7)}/feed)\n`);
+  const shard = await attachMonitor(server, values, (line) => process.stderr.write(`${line}\n`)).catch(async (e: unknown) => {
+    if (disSource) await stopServeDis(disSource, say);
+    await server.close();
+    throw e;
+  });
   await new Promise<void>((res) => {
     const stop = () => res();
     process.once('SIGINT', stop);
@@ -260,6 +276,7 @@ async function serve(args: string[]): Promise<number> {
   });
   if (disSource) await stopServeDis(disSource, say);
   process.stderr.write('stopping: committing the journal\n');
+  await shard?.close();
   await server.close();
   return EXIT_OK;
 }
@@ -369,7 +386,7 @@ export async function main(argv: string[]): Promise<number> {
       process.stderr.write(`plumbline: ${e.message}\n\n${USAGE}\n`);
       return EXIT_INPUT;
     }
-    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError || e instanceof DebriefError || e instanceof DisBridgeError) {
+    if (e instanceof ServeError || e instanceof JournalError || e instanceof ReplayError || e instanceof DemoError || e instanceof DebriefError || e instanceof DisBridgeError || e instanceof BrokerError) {
       process.stderr.write(`plumbline: ${e.message}\n`);
       return EXIT_INPUT;
     }
