@@ -7,7 +7,16 @@
  *
  * Every flag is raised once per episode, when the episode has ended (the first normal point after
  * it, or closeTrack), so it carries its whole extent: a 12 s dropout is one flag with its start and
- * end, a three-sample glitch one flag. The state is never mutated; each call returns a new one.
+ * end, a three-sample glitch one flag. The state is never mutated; each call returns a new one
+ * (test/engine/quality.test.ts feeds two different points to one state and compares with copies,
+ * so the contract stays persistent rather than in place).
+ *
+ * Cost per point. The windows are small immutable arrays shared or copied; the selections (medians
+ * of intervals, residuals, slopes and intercepts) run in one module-level scratch Float64Array
+ * reused by every call, so they allocate nothing; the noise scale's median is skipped when a pass of
+ * comparisons already shows it is too large for the point to be a jump (medianAtLeast); states are
+ * built by one constructor, one object shape. test/engine/quality-equivalence.test.ts checks the
+ * flags against the previous implementation, `npm run bench:quality` times the two.
  *
  * Order. The service accepts points up to a tolerance out of order (ingest/service/limits.ts
  * `timeReversalTolerance`, 5 s by default), so the checks run on points in track time: a point is
@@ -225,6 +234,21 @@ function median(values: readonly number[]): number {
   return selectMedian(a, n);
 }
 
+/**
+ * True when the median of the list is certainly at least x (times 1 + 1e-9, a margin far above the
+ * rounding of x's divisions): more than half the values are at least that. A pass of comparisons
+ * instead of a selection; when it is true the point cannot pass the noise test (σ̂ ≥ the bound), so
+ * the common case at a high rate (a Δt so short that noise alone exceeds maxRate · Δt) skips the
+ * median. False means "not certain", and the median is then selected exactly.
+ */
+function medianAtLeast(values: readonly number[], x: number): boolean {
+  const bound = x * (1 + 1e-9);
+  const need = (values.length >> 1) + 1;
+  let count = 0;
+  for (let i = 0; i < values.length; i++) if (values[i] >= bound && ++count >= need) return true;
+  return false;
+}
+
 function minimum(values: readonly number[]): number {
   let m = Number.POSITIVE_INFINITY;
   for (let i = 0; i < values.length; i++) if (values[i] < m) m = values[i];
@@ -411,7 +435,7 @@ function observeChannel(s: Settings, c: number, ch: ChannelState, t: number, raw
     residual = Math.abs(value - theilSen(ch.history, t));
     excess = residual - spec.maxRate * (t - (ch.lastT ?? t));
     // σ̂ only when the rate bound is exceeded at all (its median is the costly part).
-    if (excess > 0 && ch.residuals.length >= s.scaleWarmup) {
+    if (excess > 0 && ch.residuals.length >= s.scaleWarmup && !medianAtLeast(ch.residuals, Math.min(excess / s.rateMargin, residual / s.noiseMargin) / MAD_SCALE)) {
       sigma = MAD_SCALE * median(ch.residuals);
       outlying = excess > s.rateMargin * sigma && residual > s.noiseMargin * sigma;
     }

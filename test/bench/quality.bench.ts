@@ -14,8 +14,8 @@ import * as reference from '../support/quality-reference.js';
 import { PLAIN_CHANNELS, RATE_CHANNELS, qualityTrack } from '../support/quality-tracks.js';
 
 type Monitor = typeof current;
-const TRACKS = Number(process.env.BENCH_TRACKS ?? 20);
-const POINTS = Number(process.env.BENCH_POINTS ?? 20_000);
+const TRACKS = Number(process.env.BENCH_TRACKS ?? 8);
+const POINTS = Number(process.env.BENCH_POINTS ?? 10_000);
 const ROUNDS = 3;
 
 function feed(m: Monitor, tracks: readonly QualityPoint[][], channels: readonly QualityChannel[]): QualityFlag[] {
