@@ -9,16 +9,22 @@
  * checks only) and channels with one (the jump check: Theil–Sen line and MAD scale), at 50 Hz and 2 Hz.
  */
 import * as current from '../../engine/quality.js';
-import type { QualityChannel, QualityFlag, QualityPoint } from '../../engine/quality.js';
+import type { QualityChannel, QualityFlag, QualityOptions, QualityPoint } from '../../engine/quality.js';
 import * as reference from '../support/quality-reference.js';
 import { PLAIN_CHANNELS, RATE_CHANNELS, qualityTrack } from '../support/quality-tracks.js';
 
-type Monitor = typeof current;
 const TRACKS = Number(process.env.BENCH_TRACKS ?? 8);
 const POINTS = Number(process.env.BENCH_POINTS ?? 10_000);
 const ROUNDS = 3;
 
-function feed(m: Monitor, tracks: readonly QualityPoint[][], channels: readonly QualityChannel[]): QualityFlag[] {
+/** What the two monitors have in common (their state types differ). */
+interface Monitor<S> {
+  initialQuality(options: QualityOptions): S;
+  observePoint(state: S, point: QualityPoint): { state: S; flags: QualityFlag[] };
+  closeTrack(state: S, horizon: number): QualityFlag[];
+}
+
+function feed<S>(m: Monitor<S>, tracks: readonly QualityPoint[][], channels: readonly QualityChannel[]): QualityFlag[] {
   const flags: QualityFlag[] = [];
   for (const points of tracks) {
     let s = m.initialQuality({ channels, reorderTolerance: 5 });
@@ -32,7 +38,7 @@ function feed(m: Monitor, tracks: readonly QualityPoint[][], channels: readonly 
   return flags;
 }
 
-function timeOf(m: Monitor, tracks: readonly QualityPoint[][], channels: readonly QualityChannel[]): number {
+function timeOf<S>(m: Monitor<S>, tracks: readonly QualityPoint[][], channels: readonly QualityChannel[]): number {
   const start = process.hrtime.bigint();
   feed(m, tracks, channels);
   return Number(process.hrtime.bigint() - start);

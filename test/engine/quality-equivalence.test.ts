@@ -13,7 +13,14 @@ import type { QualityChannel, QualityFlag, QualityOptions, QualityPoint } from '
 import * as reference from '../support/quality-reference.js';
 import { PLAIN_CHANNELS, RATE_CHANNELS, qualityTrack } from '../support/quality-tracks.js';
 
-function flagsOf(m: typeof current, points: readonly QualityPoint[], options: QualityOptions): QualityFlag[] {
+/** What the two monitors have in common (their state types differ). */
+interface Monitor<S> {
+  initialQuality(options: QualityOptions): S;
+  observePoint(state: S, point: QualityPoint): { state: S; flags: QualityFlag[] };
+  closeTrack(state: S, horizon: number): QualityFlag[];
+}
+
+function flagsOf<S>(m: Monitor<S>, points: readonly QualityPoint[], options: QualityOptions): QualityFlag[] {
   let s = m.initialQuality(options);
   const flags: QualityFlag[] = [];
   for (const p of points) {
