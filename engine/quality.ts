@@ -7,7 +7,16 @@
  *
  * Every flag is raised once per episode, when the episode has ended (the first normal point after
  * it, or closeTrack), so it carries its whole extent: a 12 s dropout is one flag with its start and
- * end, a three-sample glitch one flag. The state is never mutated; each call returns a new one.
+ * end, a three-sample glitch one flag. The state is never mutated; each call returns a new one
+ * (test/engine/quality.test.ts feeds two different points to one state and compares with copies,
+ * so the contract stays persistent rather than in place).
+ *
+ * Cost per point. The windows are small immutable arrays shared or copied; the selections (medians
+ * of intervals, residuals, slopes and intercepts) run in one module-level scratch Float64Array
+ * reused by every call, so they allocate nothing; the noise scale's median is skipped when a pass of
+ * comparisons already shows it is too large for the point to be a jump (medianAtLeast); states are
+ * built by one constructor, one object shape. test/engine/quality-equivalence.test.ts checks the
+ * flags against the previous implementation, `npm run bench:quality` times the two.
  *
  * Order. The service accepts points up to a tolerance out of order (ingest/service/limits.ts
  * `timeReversalTolerance`, 5 s by default), so the checks run on points in track time: a point is
@@ -207,8 +216,43 @@ export interface QualityState {
   readonly channels: readonly ChannelState[];
 }
 
-function median(values: ArrayLike<number>): number {
-  return selectMedian(Float64Array.from(values));
+/**
+ * Scratch for the medians: reused by every call (the reducer is synchronous and never re-entered),
+ * so a median allocates nothing. Grown when a window is longer than it.
+ */
+let scratch = new Float64Array(256);
+function scratchOf(n: number): Float64Array {
+  if (scratch.length < n) scratch = new Float64Array(Math.max(n, 2 * scratch.length));
+  return scratch;
+}
+
+/** Median of a list, selected in the scratch array (the list is not changed). */
+function median(values: readonly number[]): number {
+  const n = values.length;
+  const a = scratchOf(n);
+  for (let i = 0; i < n; i++) a[i] = values[i];
+  return selectMedian(a, n);
+}
+
+/**
+ * True when the median of the list is certainly at least x (times 1 + 1e-9, a margin far above the
+ * rounding of x's divisions): more than half the values are at least that. A pass of comparisons
+ * instead of a selection; when it is true the point cannot pass the noise test (σ̂ ≥ the bound), so
+ * the common case at a high rate (a Δt so short that noise alone exceeds maxRate · Δt) skips the
+ * median. False means "not certain", and the median is then selected exactly.
+ */
+function medianAtLeast(values: readonly number[], x: number): boolean {
+  const bound = x * (1 + 1e-9);
+  const need = (values.length >> 1) + 1;
+  let count = 0;
+  for (let i = 0; i < values.length; i++) if (values[i] >= bound && ++count >= need) return true;
+  return false;
+}
+
+function minimum(values: readonly number[]): number {
+  let m = Number.POSITIVE_INFINITY;
+  for (let i = 0; i < values.length; i++) if (values[i] < m) m = values[i];
+  return m;
 }
 
 function pushBounded<T>(list: readonly T[], item: T, cap: number): T[] {
@@ -221,27 +265,36 @@ function fmt(x: number, digits = 2): string {
   return Number(x.toFixed(digits)).toString();
 }
 
-/** Theil–Sen line through the points (times increasing), evaluated at t. */
+/**
+ * Theil–Sen line through the points (times increasing), evaluated at t (Sen 1968, above): the
+ * median of the n(n−1)/2 pairwise slopes and the median intercept, both selected in the reused
+ * scratch array (slopes first, then the intercepts over them), so no allocation per point.
+ */
 function theilSen(points: ReadonlyArray<readonly [number, number]>, t: number): number {
   const n = points.length;
   const ref = points[n - 1][0];
-  const slopes = new Float64Array((n * (n - 1)) / 2);
+  const a = scratchOf((n * (n - 1)) / 2 + n);
   let m = 0;
   for (let i = 0; i < n; i++) {
+    const pi = points[i];
     for (let j = i + 1; j < n; j++) {
-      const dt = points[j][0] - points[i][0];
-      if (dt > 0) slopes[m++] = (points[j][1] - points[i][1]) / dt;
+      const pj = points[j];
+      const dt = pj[0] - pi[0];
+      if (dt > 0) a[m++] = (pj[1] - pi[1]) / dt;
     }
   }
-  const b = m > 0 ? selectMedian(slopes.subarray(0, m)) : 0;
-  const a = selectMedian(Float64Array.from(points, ([s, y]) => y - b * (s - ref)));
-  return a + b * (t - ref);
+  const b = m > 0 ? selectMedian(a, m) : 0;
+  for (let i = 0; i < n; i++) a[i] = points[i][1] - b * (points[i][0] - ref);
+  return selectMedian(a, n) + b * (t - ref);
 }
 
-/** k-th smallest of a (0-based), reordering a: Hoare's selection with a middle pivot. */
-function select(a: Float64Array, k: number): number {
+/**
+ * k-th smallest of a[0, n) (0-based), reordering it: Hoare's selection ("FIND", CACM 4:321, 1961)
+ * with a middle pivot.
+ */
+function select(a: Float64Array, n: number, k: number): number {
   let lo = 0;
-  let hi = a.length - 1;
+  let hi = n - 1;
   while (lo < hi) {
     const pivot = a[(lo + hi) >> 1];
     let i = lo;
@@ -264,11 +317,10 @@ function select(a: Float64Array, k: number): number {
   return a[k];
 }
 
-/** Median of a (reordered in place). */
-function selectMedian(a: Float64Array): number {
-  const n = a.length;
+/** Median of a[0, n) (reordered in place). */
+function selectMedian(a: Float64Array, n: number): number {
   if (n === 0) return Number.NaN;
-  const upper = select(a, n >> 1);
+  const upper = select(a, n, n >> 1);
   if (n % 2) return upper;
   let lower = Number.NEGATIVE_INFINITY;
   for (let i = 0; i < n >> 1; i++) if (a[i] > lower) lower = a[i];
@@ -280,15 +332,26 @@ export function initialQuality(options: QualityOptions): QualityState {
   for (const [name, v] of Object.entries(settings)) {
     if (typeof v === 'number' && !(v > 0)) throw new RangeError(`initialQuality: ${name} must be positive, got ${v}`);
   }
-  return {
-    settings,
-    maxT: Number.NEGATIVE_INFINITY,
-    buffer: { arr: [], start: 0, end: 0 },
-    intervals: [],
-    warm: false,
-    warmup: [],
-    channels: options.channels.map(() => channelState(undefined, undefined, undefined, [], [], undefined, undefined)),
-  };
+  const channels = options.channels.map(() => channelState(undefined, undefined, undefined, [], [], undefined, undefined));
+  return qualityState(settings, Number.NEGATIVE_INFINITY, { arr: [], start: 0, end: 0 }, undefined, [], false, [], undefined, channels);
+}
+
+/**
+ * A state with every field in the same order: one object shape, so the engine's property accesses
+ * stay monomorphic (object spreads with overrides made several shapes and cost more than the checks).
+ */
+function qualityState(
+  settings: Settings,
+  maxT: number,
+  buffer: HeldPoints,
+  lastT: number | undefined,
+  intervals: readonly number[],
+  warm: boolean,
+  warmup: QualityState['warmup'],
+  reversal: Episode | undefined,
+  channels: readonly ChannelState[],
+): QualityState {
+  return { settings, maxT, buffer, lastT, intervals, warm, warmup, reversal, channels };
 }
 
 function stripUndefined(o: QualityOptions): Partial<Settings> {
@@ -372,7 +435,7 @@ function observeChannel(s: Settings, c: number, ch: ChannelState, t: number, raw
     residual = Math.abs(value - theilSen(ch.history, t));
     excess = residual - spec.maxRate * (t - (ch.lastT ?? t));
     // σ̂ only when the rate bound is exceeded at all (its median is the costly part).
-    if (excess > 0 && ch.residuals.length >= s.scaleWarmup) {
+    if (excess > 0 && ch.residuals.length >= s.scaleWarmup && !medianAtLeast(ch.residuals, Math.min(excess / s.rateMargin, residual / s.noiseMargin) / MAD_SCALE)) {
       sigma = MAD_SCALE * median(ch.residuals);
       outlying = excess > s.rateMargin * sigma && residual > s.noiseMargin * sigma;
     }
@@ -402,7 +465,7 @@ function release(state: QualityState, p: QualityPoint, flags: QualityFlag[]): Qu
     const dt = p.t - state.lastT;
     if (!(dt > 0)) return state; // a repeated time: nothing new to check
     // The median is only needed when dt could be a dropout (it is at least the window's minimum).
-    const nominal = warm && dt > s.gapFactor * Math.min(...intervals) ? median(intervals) : Number.POSITIVE_INFINITY;
+    const nominal = warm && dt > s.gapFactor * minimum(intervals) ? median(intervals) : Number.POSITIVE_INFINITY;
     if (warm && dt > s.gapFactor * nominal) {
       flags.push(dropoutFlag(state.lastT, p.t, nominal));
     } else if (warm) {
@@ -418,8 +481,9 @@ function release(state: QualityState, p: QualityPoint, flags: QualityFlag[]): Qu
       }
     }
   }
-  const channels = state.channels.map((ch, c) => observeChannel(s, c, ch, p.t, p.values[c], flags));
-  return { ...state, lastT: p.t, intervals, warm, warmup, channels };
+  const channels: ChannelState[] = new Array(state.channels.length);
+  for (let c = 0; c < channels.length; c++) channels[c] = observeChannel(s, c, state.channels[c], p.t, p.values[c], flags);
+  return qualityState(s, state.maxT, state.buffer, p.t, intervals, warm, warmup, state.reversal, channels);
 }
 
 /** Feed one point (in arrival order); returns the new state and the flags of episodes that ended. */
@@ -436,7 +500,7 @@ export function observePoint(state: QualityState, point: QualityPoint): { state:
     const reversal = r
       ? { start: Math.min(r.start, point.t), end: Math.max(r.end, point.t), count: r.count + 1, size: Math.max(r.size, late) }
       : { start: point.t, end: point.t, count: 1, size: late };
-    return { state: { ...state, reversal }, flags };
+    return { state: qualityState(s, state.maxT, state.buffer, state.lastT, state.intervals, state.warm, state.warmup, reversal, state.channels), flags };
   }
   if (state.reversal) flags.push(reversalFlag(s, state.reversal));
   const maxT = Math.max(state.maxT, point.t);
@@ -447,14 +511,15 @@ export function observePoint(state: QualityState, point: QualityPoint): { state:
     arr.push(point); // in time order, and this state owns the tail: no other state sees it
     end++;
   } else {
-    const copy = arr.slice(start, at);
-    copy.push(point);
-    for (let i = at; i < end; i++) copy.push(arr[i]);
+    const copy: QualityPoint[] = new Array(end - start + 1);
+    for (let i = start; i < at; i++) copy[i - start] = arr[i];
+    copy[at - start] = point;
+    for (let i = at; i < end; i++) copy[i - start + 1] = arr[i];
     arr = copy;
     start = 0;
     end = copy.length;
   }
-  let next: QualityState = { ...state, maxT, reversal: undefined };
+  let next = qualityState(s, maxT, state.buffer, state.lastT, state.intervals, state.warm, state.warmup, undefined, state.channels);
   let k = start;
   while (k < end && arr[k].t < maxT - s.reorderTolerance) next = release(next, arr[k++], flags);
   if (k > COMPACT_AFTER && k > end - k) {
@@ -462,7 +527,7 @@ export function observePoint(state: QualityState, point: QualityPoint): { state:
     end -= k;
     k = 0;
   }
-  return { state: { ...next, buffer: { arr, start: k, end } }, flags };
+  return { state: qualityState(s, maxT, { arr, start: k, end }, next.lastT, next.intervals, next.warm, next.warmup, undefined, next.channels), flags };
 }
 
 /** End of the track: release held points, close open episodes, and check for a short track. */
