@@ -10,8 +10,8 @@ import type { EventPlan, PlanSources } from '../plan.js';
 import { BridgeError, formatStats, type RunningDisSource } from '../dis/bridge.js';
 import { listenTarget } from '../dis/listen.js';
 import { DEFAULT_SILENCE, loadDisMapping } from '../dis/mapping.js';
-import { startServiceDisSource, type ServiceDisConfig } from '../dis/service-source.js';
-import type { Submit } from '../dis/submit-output.js';
+import { ServiceDisSource, type ServiceDisConfig } from '../dis/service-source.js';
+import type { Source } from '../service/source.js';
 import { DisBridgeError, DisBridgeUsageError } from './dis-bridge.js';
 
 export interface ServeDisArgs {
@@ -40,12 +40,15 @@ export async function serveDisConfig(a: ServeDisArgs): Promise<{ config: Service
   return undefined;
 }
 
-/** Start the source in the service; a source that cannot start is a DisBridgeError (exit 2). */
-export async function startServeDis(server: { submit: Submit; journal: { getMeta(key: string): string | undefined } }, plan: EventPlan | undefined, c: { config: ServiceDisConfig; origin: string }, say: (line: string) => void): Promise<RunningDisSource> {
+/** Start the source in the service (registered as one of its sources); a source that cannot start is a DisBridgeError (exit 2). */
+export async function startServeDis(server: { addSource(source: Source): Promise<void>; journal: { getMeta(key: string): string | undefined } }, plan: EventPlan | undefined, c: { config: ServiceDisConfig; origin: string }, say: (line: string) => void): Promise<RunningDisSource> {
   // without --plan, the plan is the journal's
   const active = plan ?? (JSON.parse(server.journal.getMeta('plan') as string) as EventPlan);
   try {
-    return await startServiceDisSource({ server, plan: active, config: c.config, origin: c.origin, onEvent: say });
+    // registered with the server: /healthz shows its counters and closing the server stops it
+    const source = new ServiceDisSource({ plan: active, config: c.config, origin: c.origin, onEvent: say });
+    await server.addSource(source);
+    return source.running as RunningDisSource;
   } catch (e) {
     if (e instanceof BridgeError) throw new DisBridgeError(e.message);
     throw e;

@@ -2,13 +2,15 @@
  * The DIS source inside the service process (`plumbline serve --dis`, or the plan's `sources.dis`):
  * the UDP socket and router of bridge.ts with `SubmitOutput` as the output, so each run's messages
  * go through `RunningServer.submit` (batch → validate → journal → acknowledge) as a `/feed`
- * producer's would, without a socket in between.
+ * producer's would, without a socket in between. `ServiceDisSource` is the same as a `Source`
+ * (../service/source.ts) the server starts, stops and lists in /healthz.
  */
 import type { EventPlan } from '../plan.js';
-import { closedLine, startDisSource, type RunningDisSource } from './bridge.js';
+import type { Source, Submit } from '../service/source.js';
+import { closedLine, startDisSource, type DisSourceCounters, type RunningDisSource } from './bridge.js';
 import { listenTarget } from './listen.js';
 import { resolveMapping, type DisMapping } from './mapping.js';
-import { SubmitOutput, type Submit } from './submit-output.js';
+import { SubmitOutput } from './submit-output.js';
 
 /** What the source needs: where to listen, the mapping, the silence (the plan's `sources.dis` block). */
 export interface ServiceDisConfig extends Pick<DisMapping, 'sites' | 'channels' | 'entities'> {
@@ -41,4 +43,31 @@ export async function startServiceDisSource(o: ServiceDisOptions): Promise<Runni
     onClosed: (v, t, already) => o.onEvent?.(closedLine(v, t, already)),
   });
   return startDisSource({ ...target, output, plan: o.plan, entries, silence: o.config.silence, onEvent: o.onEvent, noticeIntervalMs: o.noticeIntervalMs });
+}
+
+/** The DIS source as the server's `Source`: started with the server's `submit`, its counters in /healthz. */
+export class ServiceDisSource implements Source {
+  readonly name = 'dis';
+  private source?: RunningDisSource;
+
+  constructor(private readonly options: Omit<ServiceDisOptions, 'server'>) {}
+
+  async start(submit: Submit): Promise<void> {
+    if (this.source) throw new Error('the DIS source is already started');
+    this.source = await startServiceDisSource({ ...this.options, server: { submit } });
+  }
+
+  /** The running source once started. */
+  get running(): RunningDisSource | undefined {
+    return this.source;
+  }
+
+  counters(): DisSourceCounters | Record<string, never> {
+    return this.source?.counters() ?? {};
+  }
+
+  /** Closes the open runs and the socket; the running source's close is idempotent. */
+  stop(): Promise<void> {
+    return this.source?.close() ?? Promise.resolve();
+  }
 }

@@ -13,8 +13,9 @@
 import { clientMessageSchema, errorReply, type ClientMessage, type ServerReply } from '../service/protocol.js';
 import { TrackOutbox, type OutboxOptions } from './run-output.js';
 
-/** The part of `RunningServer` this output needs. */
-export type Submit = (message: ClientMessage, reply: (r: ServerReply) => void) => void;
+/** The part of `RunningServer` this output needs (../service/source.ts). */
+export type { Submit } from '../service/source.js';
+import type { Submit } from '../service/source.js';
 
 export class SubmitOutput extends TrackOutbox {
   private stopped = false;

@@ -36,6 +36,7 @@ import { Journal, JournalError } from './journal.js';
 import { DEFAULT_LIMITS, type ServiceLimits } from './limits.js';
 import { batchPerTurn, latestPerKeyPerWindow } from './operators.js';
 import { errorReply, parseClientMessage, protocolJsonSchema, type ClientMessage, type ServerReply } from './protocol.js';
+import type { Source } from './source.js';
 import type { WatchMessage, WatchUpdate } from './view.js';
 
 export interface ServeOptions {
@@ -60,6 +61,8 @@ export interface ServeOptions {
   readonly fitCache?: boolean;
   readonly log?: (line: string) => void;
   readonly onProgress?: (label: string, done: number, total: number) => void;
+  /** In-process sources (./source.ts), started once the server listens and stopped when it closes. */
+  readonly sources?: readonly Source[];
 }
 
 export interface RunningServer {
@@ -73,11 +76,15 @@ export interface RunningServer {
    * batch → validate → journal → acknowledge path as a `/feed` frame. `reply` gets the ack or error.
    */
   submit(message: ClientMessage, reply: (r: ServerReply) => void): void;
+  /** Start an in-process source with `submit`, list it in /healthz and stop it on close (./source.ts). */
+  addSource(source: Source): Promise<void>;
+  /** The sources started so far, in start order. */
+  readonly sources: readonly Source[];
   close(): Promise<void>;
 }
 
 export class ServeError extends Error {
-  constructor(readonly code: 'PORT_IN_USE' | 'TOKEN_REQUIRED' | 'PLAN_REQUIRED' | 'PLAN_MISMATCH' | 'LISTEN_FAILED', message: string) {
+  constructor(readonly code: 'PORT_IN_USE' | 'TOKEN_REQUIRED' | 'PLAN_REQUIRED' | 'PLAN_MISMATCH' | 'LISTEN_FAILED' | 'SOURCE_FAILED', message: string) {
     super(message);
     this.name = 'ServeError';
   }
@@ -238,7 +245,7 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
         const ms = (ns: number) => Math.round(ns / 1e4) / 100;
         const eventLoop = { p50Ms: ms(loopDelay.percentile(50)), p99Ms: ms(loopDelay.percentile(99)), maxMs: ms(loopDelay.max) };
         if (url.searchParams.has('reset')) loopDelay.reset();
-        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion, eventLoop, memory: { rssBytes: mem.rss, heapUsedBytes: mem.heapUsed } });
+        return sendJson(res, 200, { ok: !worker.broken && j.writable, worker: worker.broken?.message ?? 'running', journal: j, queue: worker.queued, sqlite: journal.sqliteVersion, eventLoop, memory: { rssBytes: mem.rss, heapUsedBytes: mem.heapUsed }, sources: sources.map((s) => ({ name: s.name, counters: s.counters() })) });
       }
       const run = /^\/api\/runs\/([^/]+)\/([^/]+)$/.exec(path);
       if (run) {
@@ -268,6 +275,8 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       sendJson(res, 500, { error: 'INTERNAL', reason: e instanceof Error ? e.message : String(e) });
     }
   };
+  // In-process sources (./source.ts): started after listen, stopped first on close.
+  const sources: Source[] = [];
   const server: Server = createServer(handleHttp);
   // Event-loop delay of this process (perf_hooks histogram, ns), reported by /healthz.
   const loopDelay = monitorEventLoopDelay({ resolution: 10 });
@@ -480,17 +489,32 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
   ownOrigins = [`http://${shownHost}:${port}`, `http://localhost:${port}`, `http://127.0.0.1:${port}`];
 
   let closing: Promise<void> | undefined;
-  return {
+  const running: RunningServer = {
     url: `http://${shownHost}:${port}`,
     port,
     host,
     service: svc,
     journal,
+    sources,
     submit(message, reply) {
       inbound$.next({ role: 'producer', message, reply });
     },
+    async addSource(source) {
+      if (closing) throw new ServeError('SOURCE_FAILED', `the server is closing: source "${source.name}" not started`);
+      if (sources.some((s) => s.name === source.name)) throw new ServeError('SOURCE_FAILED', `a source named "${source.name}" is already running`);
+      await source.start(running.submit);
+      sources.push(source);
+    },
     close() {
       closing ??= (async () => {
+        // Sources first: they close their runs through submit while the pipeline still runs.
+        for (const s of [...sources].reverse()) {
+          try {
+            await s.stop();
+          } catch (e) {
+            log(`source ${s.name} did not stop cleanly: ${e instanceof Error ? e.message : String(e)}`);
+          }
+        }
         loopDelay.disable();
         clearInterval(heartbeat);
         clearInterval(drainTimer);
@@ -509,6 +533,15 @@ export async function startServer(options: ServeOptions): Promise<RunningServer>
       return closing;
     },
   };
+  for (const s of options.sources ?? []) {
+    try {
+      await running.addSource(s);
+    } catch (e) {
+      await running.close();
+      throw e;
+    }
+  }
+  return running;
 }
 
 export { JournalError };

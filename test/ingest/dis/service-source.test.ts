@@ -200,6 +200,10 @@ describe('serve with the DIS source in the service process', () => {
       await expect(startServeDis(server, undefined, { config: bad, origin: 'map.json' }, () => undefined)).rejects.toMatchObject({ code: 'MAPPING_PLAN', issues: ['entities.0.vignette: "Z9" is not a vignette of the plan'] });
       const source = await startServeDis(server, undefined, { config: sources.dis!, origin: 'map.json' }, () => undefined);
       expect(source.address.port).toBeGreaterThan(0);
+      // registered with the server as one of its sources: /healthz shows its counters
+      const health = (await (await fetch(`${server.url}/healthz`)).json()) as { sources: Array<{ name: string; counters: Record<string, unknown> }> };
+      expect(health.sources).toEqual([{ name: 'dis', counters: JSON.parse(JSON.stringify(source.counters())) }]);
+      expect(health.sources[0].counters).toMatchObject({ datagrams: 0, points: 0, runsOpened: 0 });
       await source.close();
     } finally {
       await server.close();
