@@ -4,6 +4,7 @@
  *   publish --broker URL --live FILE --plan FILE [--event E] [--speed X] [--overlap N] [--points-per-message N]
  *   gather --broker URL [--event E] [--host H] [--port N]           one dashboard over every monitor of the event
  */
+import type { Source } from '../service/source.js';
 import { parseArgs } from 'node:util';
 import { loadPlan } from '../plan.js';
 import { readTracks } from '../tracks-reader.js';
@@ -45,20 +46,33 @@ export async function attachMonitor(server: RunningServer, values: { broker?: un
   if (typeof values.shard !== 'string') throw new BrokerError('BAD_SHARD', '--broker needs --shard V1,V2 (the vignettes this monitor owns)');
   const vignettes = values.shard.split(',').map((s) => s.trim()).filter((s) => s.length > 0);
   const nc = await connectBroker(values.broker, `plumbline monitor ${values.shard}`);
-  try {
-    const monitor = await startMonitor({ server, nc, layout: layoutOf(values.event), vignettes, shard: typeof values['shard-name'] === 'string' ? values['shard-name'] : undefined, log });
-    return {
-      monitor,
-      async close() {
+  // The monitor is one of the service's in-process sources (ingest/service/source.ts): /healthz
+  // lists its counters, and closing the server stops it before the last commit.
+  let monitor: Monitor | undefined;
+  let stopping: Promise<void> | undefined;
+  const stop = () =>
+    (stopping ??= (async () => {
+      if (monitor) {
         await monitor.close();
         await nc.drain();
         log(monitorSummary(monitor));
-      },
-    };
+      } else await nc.close();
+    })());
+  const source: Source = {
+    name: 'broker',
+    async start(submit) {
+      monitor = await startMonitor({ server: { ...server, submit }, nc, layout: layoutOf(values.event), vignettes, shard: typeof values['shard-name'] === 'string' ? values['shard-name'] : undefined, log });
+    },
+    stop,
+    counters: () => (monitor ? { shard: monitor.shard, ...monitor.stats() } : { starting: true }),
+  };
+  try {
+    await server.addSource(source);
   } catch (e) {
-    await nc.close();
+    await stop();
     throw e;
   }
+  return { monitor: monitor as Monitor, close: stop };
 }
 
 /** One line: what the monitor did, and its publish → journaled acknowledgement latency. */

@@ -84,6 +84,11 @@ it('loses and doubles nothing across a SIGKILL and a restart', async () => {
     const r = (await (await fetch(`http://127.0.0.1:${port}/api/state`)).json()) as { log: Array<{ kind: string }> };
     return r.log.filter((e) => e.kind === 'note').length >= notes.length;
   }, 30_000);
+  // The monitor is one of the service's sources: /healthz lists it with its counters.
+  const health = (await (await fetch(`http://127.0.0.1:${port}/healthz`)).json()) as { sources: Array<{ name: string; counters: { shard?: string; received?: number; acknowledged?: number } }> };
+  const listed = health.sources.find((s) => s.name === 'broker');
+  expect(listed?.counters.received).toBeGreaterThan(0);
+  expect(listed?.counters.acknowledged).toBeGreaterThan(0);
   const exited = new Promise((r) => second.child.once('exit', r));
   second.child.kill('SIGTERM');
   await exited;
