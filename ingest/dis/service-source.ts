@@ -55,6 +55,9 @@ export class ServiceDisSource implements Source {
   async start(submit: Submit): Promise<void> {
     if (this.source) throw new Error('the DIS source is already started');
     this.source = await startServiceDisSource({ ...this.options, server: { submit } });
+    // The DIS settings are not part of the stored plan (changing a port must not refuse the
+    // journal), so the settings this start used go into the event log, for the debrief.
+    submit({ v: 1, type: 'note', id: `dis-settings-${Date.now()}`, text: settingsLine(this.options.config), author: 'dis source' }, () => undefined);
   }
 
   /** The running source once started. */
@@ -70,4 +73,13 @@ export class ServiceDisSource implements Source {
   stop(): Promise<void> {
     return this.source?.close() ?? Promise.resolve();
   }
+}
+
+/** One line of the settings a DIS source started with (sites, channel quantities, entities, silence). */
+export function settingsLine(c: ServiceDisConfig): string {
+  const sites = Object.entries(c.sites).map(([n, x]) => `${n} (${x.lat}° N, ${x.lon}° E, ${x.height} m)`).join('; ');
+  const channels = c.channels ? Object.entries(c.channels).map(([ch, q]) => `${ch} = ${q}`).join(', ') : 'plan channel names';
+  const entities = c.entities.map((e) => `${e.exercise ?? '*'}:${e.site}:${e.application}:${e.entity} → ${e.vignette}/${e.track}`).join(', ');
+  const line = `DIS source started: listening on ${c.listen}${c.interface ? ` (interface ${c.interface})` : ''}; runs close after ${c.silence} s of silence; sites: ${sites}; channels: ${channels}; entities: ${entities}`;
+  return line.length <= 2000 ? line : `${line.slice(0, 1997)}...`;
 }

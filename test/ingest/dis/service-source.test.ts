@@ -204,6 +204,11 @@ describe('serve with the DIS source in the service process', () => {
       const health = (await (await fetch(`${server.url}/healthz`)).json()) as { sources: Array<{ name: string; counters: Record<string, unknown> }> };
       expect(health.sources).toEqual([{ name: 'dis', counters: JSON.parse(JSON.stringify(source.counters())) }]);
       expect(health.sources[0].counters).toMatchObject({ datagrams: 0, points: 0, runsOpened: 0 });
+      // the settings it started with are in the event log (the plan stored in the journal has no DIS block)
+      await until(() => server.service.snapshot().log.some((e) => e.author === 'dis source'));
+      const note = server.service.snapshot().log.find((e) => e.author === 'dis source');
+      expect(note?.text).toContain(`listening on ${sources.dis!.listen}`);
+      expect(note?.text).toContain('→ A1/usv-9');
       await source.close();
     } finally {
       await server.close();
