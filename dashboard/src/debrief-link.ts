@@ -6,7 +6,8 @@ import { shared } from './theme.js';
  * The debrief package of the event so far as one download (GET /api/debrief.zip: report.html,
  * results.json, runs.csv, notes.csv). A plain link, so the browser's own download handles it and
  * the keyboard reaches it; the label says when the event is unfinished (runs in flight, or
- * vignettes without a judged run), as the report's first page does.
+ * vignettes without a judged run), as the report's first page does. A view gathered from several
+ * monitors (`plumbline gather`) links each monitor's package of its shard instead.
  *
  * Slots: none. Parts: `link`. Events: none.
  */
@@ -51,6 +52,14 @@ export class PlDebriefLink extends LitElement {
     const unjudged = ev?.vignettes.filter((v) => v.combined === undefined).length ?? 0;
     const unfinished = inFlight > 0 || unjudged > 0;
     const detail = unfinished ? `event so far${inFlight ? `; ${inFlight} in flight not included` : ''}` : 'report, JSON and CSV';
+    // A gathered view (several monitors) has no package of its own: one link per monitor's shard.
+    if (ev?.gathered && ev.gathered.length > 0) {
+      return html`${ev.gathered.map(
+        (m) => html`<a part="link" href=${`${m.url}/api/debrief.zip`} title=${`The debrief package of shard ${m.shard}, from its monitor ${m.url}`}
+          ><span aria-hidden="true">⤓</span> Debrief, shard ${m.shard} <small>(${detail})</small></a
+        > `,
+      )}`;
+    }
     return html`<a part="link" href="/api/debrief.zip" download="plumbline-debrief.zip" title="The debrief package: report.html, results.json, runs.csv and notes.csv in one .zip"
       ><span aria-hidden="true">⤓</span> Debrief package <small>(${detail})</small></a
     >`;

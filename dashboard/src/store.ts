@@ -103,6 +103,8 @@ export class EventStore extends EventTarget {
   private log: LogEntryView[] = [];
   private cautions: readonly string[] = [];
   private journal: EventView['journal'] = { writable: true };
+  /** The monitors of a gathered view (`plumbline gather`); absent for one service. */
+  private gathered?: EventView['gathered'];
   private readonly dirty = { vignettes: false, runs: false, log: false, event: false };
 
   private connection: ConnectionState = { status: 'connecting', attempt: 0 };
@@ -380,6 +382,7 @@ export class EventStore extends EventTarget {
     this.log = state.log.slice(-this.logEntries);
     this.cautions = state.cautions;
     this.journal = state.journal ?? { writable: true };
+    this.gathered = state.gathered;
     this.dirty.vignettes = this.dirty.runs = this.dirty.log = this.dirty.event = true;
     this.autoSelect();
     if (this.selected !== undefined) this.wantDetail();
@@ -481,6 +484,7 @@ export class EventStore extends EventTarget {
         log: this.dirty.log || !event ? this.log : event.log,
         cautions: this.cautions,
         journal: this.journal,
+        ...(this.gathered ? { gathered: this.gathered } : {}),
       };
       this.dirty.event = this.dirty.runs = this.dirty.vignettes = this.dirty.log = false;
     }

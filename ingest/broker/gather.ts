@@ -141,6 +141,7 @@ export async function startGatherer(options: GatherOptions): Promise<Gatherer> {
       log: logs,
       cautions: live[0].v.cautions,
       journal: unwritable ? unwritable.v.journal : live[0].v.journal,
+      gathered: live.map((x) => ({ shard: x.m.shard, url: x.m.monitor })),
     };
   };
 

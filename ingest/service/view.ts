@@ -136,6 +136,11 @@ export interface EventView {
   readonly log: readonly LogEntryView[];
   readonly cautions: readonly string[];
   readonly journal: JournalStatusView;
+  /**
+   * Set by a gathering process (`plumbline gather`, ingest/broker/gather.ts): the monitors that
+   * answered, whose views it merges (each vignette from the monitor that announced it last). Such a view has no debrief package of its own; each monitor offers its shard's.
+   */
+  readonly gathered?: ReadonlyArray<{ readonly shard: string; readonly url: string }>;
 }
 
 /** One run in full: raw samples, smoothed curve, envelope of its vignette, projection, scores. */

@@ -20,6 +20,8 @@ export interface SyntheticOptions {
   readonly rate?: number;
   /** Track seconds per wall second. */
   readonly speed?: number;
+  /** Present the event as a gathered view of these monitors (EventView.gathered). */
+  readonly gathered?: ReadonlyArray<{ readonly shard: string; readonly url: string }>;
 }
 
 export interface SyntheticServer {
@@ -113,6 +115,7 @@ export async function startSyntheticServer(options: SyntheticOptions): Promise<S
     log: log.slice(-500),
     cautions: ['Synthetic data for a load test.'],
     journal: { writable: true },
+    ...(options.gathered ? { gathered: options.gathered } : {}),
   });
 
   /** Deterministic noise in (-1.7, 1.7) for index i of stream k (what the real server sends does not change between fetches either). */

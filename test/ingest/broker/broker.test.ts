@@ -114,6 +114,11 @@ describe('the demo event through the broker into two shard monitors', () => {
       expect(state.runs).toHaveLength(live.length);
       expect(state.combined?.pValue).toBe(one.combined?.pValue);
       expect(state.timeline.at(-1)?.pValue).toBe(one.combined?.pValue);
+      // It names the monitors it reads, here the two shards and the whole-event monitor (the
+      // dashboard links each one's debrief package from them).
+      expect(state.gathered?.map((m) => m.shard).sort()).toEqual(['shard-a', 'shard-b', 'whole']);
+      expect(state.gathered?.find((m) => m.shard === 'shard-a')?.url).toBe(a.server.url);
+      expect(state.gathered?.find((m) => m.shard === 'shard-b')?.url).toBe(b.server.url);
       const run = live[live.length - 1];
       const detail = await fetch(`${g.url}/api/runs/${encodeURIComponent(run.vignette)}/${encodeURIComponent(run.track)}`);
       expect(detail.status).toBe(200);
