@@ -9,6 +9,7 @@
  * so a sharded event gives the same numbers as one process on the same data. Per-vignette verdicts
  * are Holm-adjusted over all the plan's vignettes (ingest/report.ts, `vignetteVerdicts`).
  */
+import { combinedView as serviceCombinedView } from '../service/evidence-book.js';
 import { combineStatistics, type StatisticsCombined } from '../../engine/combine-statistics.js';
 import { EVENT_LABEL } from '../../engine/event.js';
 import type { EventPlan } from '../plan.js';
@@ -91,15 +92,7 @@ export function timelineOf(plan: Plan, results: Iterable<RunResult>): Array<{ at
   return out;
 }
 
-/** The dashboard's form of a combination (as the service shows it). */
+/** The dashboard's form of a combination, worded as spanning every shard (the service's own form). */
 export function combinedView(c: StatisticsCombined): CombinedView {
-  return {
-    method: c.method,
-    statistic: c.statistic,
-    pValue: c.pValue,
-    count: c.count,
-    byStatistic: { l2: c.byStatistic.l2.pValue, score: c.byStatistic.score.pValue, residual: c.byStatistic.residual.pValue },
-    leading: c.leading,
-    note: `fixed-sample ${c.method} combination of each statistic across all shards, the smallest of the three calibrated by ${c.draws} Monte Carlo draws (seeded): valid only for a number of runs fixed in advance`,
-  };
+  return serviceCombinedView(c, ' across all shards') as CombinedView;
 }

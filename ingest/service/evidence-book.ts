@@ -87,7 +87,8 @@ export class EvidenceBook {
   }
 }
 
-export function combinedView(c: StatisticsCombined | undefined): CombinedView | undefined {
+/** The dashboard's form of a combination; `scope` words what it spans in the note (e.g. " across all shards"). */
+export function combinedView(c: StatisticsCombined | undefined, scope = ''): CombinedView | undefined {
   return c
     ? {
         method: c.method,
@@ -96,7 +97,7 @@ export function combinedView(c: StatisticsCombined | undefined): CombinedView | 
         count: c.count,
         byStatistic: { l2: c.byStatistic.l2.pValue, score: c.byStatistic.score.pValue, residual: c.byStatistic.residual.pValue },
         leading: c.leading,
-        note: `fixed-sample ${c.method} combination of each statistic, the smallest of the three calibrated by ${c.draws} Monte Carlo draws (seeded): valid only for a number of runs fixed in advance`,
+        note: `fixed-sample ${c.method} combination of each statistic${scope}, the smallest of the three calibrated by ${c.draws} Monte Carlo draws (seeded): valid only for a number of runs fixed in advance`,
       }
     : undefined;
 }
